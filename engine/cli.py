@@ -1,0 +1,328 @@
+"""The ``drillaxis`` command line: parse, call the engine, write, report. Thin on purpose.
+
+Exit codes: 0 success; 1 bad data (the message names file, line, hole and column); 2 bad usage.
+Bad input never produces a traceback; a bug still does.
+"""
+
+from __future__ import annotations
+
+import argparse
+import contextlib
+import sys
+import time
+from pathlib import Path
+
+from .errors import DrillaxisError, UsageError
+
+DESCRIPTION = (
+    "drillaxis: validate and desurvey drillhole tables, composite them, and model the 3D variogram of "
+    "each estimation domain. Outputs support, and do not replace, the judgment of a competent or "
+    "qualified person under the public reporting code that applies."
+)
+
+
+# --------------------------------------------------------------------------------------------
+# console helpers
+# --------------------------------------------------------------------------------------------
+
+
+class Console:
+    """Prints results to stdout and progress to stderr (a bar only on a terminal)."""
+
+    def __init__(self, quiet: bool = False):
+        self.quiet = quiet
+        self.bar_allowed = not quiet and sys.stderr.isatty()
+
+    def say(self, text: str = ""):
+        if not self.quiet:
+            print(text, flush=True)
+
+    @contextlib.contextmanager
+    def stages(self, names):
+        """Yield a function ``step(name)`` that advances a progress bar over the named stages."""
+        if not self.bar_allowed:
+            yield lambda name: None
+            return
+        from tqdm import tqdm
+
+        with tqdm(total=len(names), file=sys.stderr, leave=False, unit="step",
+                  bar_format="{desc:<28}{bar}| {n_fmt}/{total_fmt} [{elapsed}]") as bar:
+            state = {"started": False}
+
+            def step(name):
+                if state["started"]:
+                    bar.update(1)
+                state["started"] = True
+                bar.set_description_str(name)
+
+            yield step
+            if state["started"]:
+                bar.update(1)
+
+
+def _safe_streams():
+    for stream in (sys.stdout, sys.stderr):
+        with contextlib.suppress(AttributeError, ValueError):
+            stream.reconfigure(errors="replace")
+
+
+# --------------------------------------------------------------------------------------------
+# options
+# --------------------------------------------------------------------------------------------
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # exit 2 with one clear line, as argparse does, plus a hint
+        self.print_usage(sys.stderr)
+        self.exit(2, f"{self.prog}: error: {message}\n(see '{self.prog} --help')\n")
+
+
+def _table_options(parser: argparse.ArgumentParser, required: bool = True):
+    group = parser.add_argument_group("tables")
+    group.add_argument("--collars", required=required, metavar="FILE", help="collar table (CSV or Parquet)")
+    group.add_argument("--surveys", required=required, metavar="FILE", help="survey table (CSV or Parquet)")
+    group.add_argument("--intervals", required=required, metavar="FILE",
+                       help="interval table: from, to, value and category columns (CSV or Parquet)")
+    group.add_argument("--column", action="append", default=[], metavar="ROLE=NAME",
+                       help="name the column of a role (hole, x, y, z, depth, at, azimuth, dip, from, "
+                            "to); repeatable")
+    group.add_argument("--dip-convention", choices=("negative-down", "positive-down"),
+                       default="negative-down", help="sign of dip for holes drilled downward "
+                                                     "(default: negative-down)")
+    group.add_argument("--azimuth-offset", type=float, default=0.0, metavar="DEG",
+                       help="degrees added to every azimuth (declination or grid convergence)")
+    group.add_argument("--below-detection", choices=("half", "limit", "zero", "missing"), default="half",
+                       help="what a value such as '<0.01' becomes (default: half the limit)")
+    group.add_argument("--missing-marker", action="append", default=[], metavar="TEXT",
+                       help="a further cell text meaning not sampled, such as NS; repeatable")
+    group.add_argument("--missing-code", action="append", default=[], type=float, metavar="NUMBER",
+                       help="a number in value columns meaning not sampled, such as -99; repeatable")
+    group.add_argument("--category", action="append", default=[], metavar="COLUMN",
+                       help="treat an interval column as a text category even if it holds numbers")
+
+
+def _common_options(parser: argparse.ArgumentParser, out_default=None):
+    parser.add_argument("--out", required=out_default is None, default=out_default, metavar="DIR",
+                        help="folder for the outputs (created if missing)")
+    parser.add_argument("--quiet", action="store_true", help="print nothing but errors")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = _Parser(prog="drillaxis", description=DESCRIPTION)
+    from . import __version__
+
+    parser.add_argument("--version", action="version", version=f"drillaxis {__version__}")
+    commands = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+    commands.required = True
+
+    p = commands.add_parser("check", help="validate the tables and list every problem",
+                            description="Validate collar, survey and interval tables. Writes "
+                                        "findings.csv and rejected.csv (the rows --skip-bad-rows would "
+                                        "leave out). Exit 0 without errors (warnings allowed), 1 with.")
+    _table_options(p)
+    _common_options(p)
+
+    p = commands.add_parser("desurvey", help="3D positions of hole traces and samples",
+                            description="Desurvey the holes: traces.csv (stations and every --step "
+                                        "metres) and samples.csv (each interval's mid-point).")
+    _table_options(p)
+    p.add_argument("--method", choices=("minimum-curvature", "balanced-tangential", "tangential"),
+                   default="minimum-curvature", help="desurvey method (default: minimum-curvature)")
+    p.add_argument("--step", type=float, default=1.0, metavar="M", help="trace spacing in metres (default 1)")
+    p.add_argument("--skip-bad-rows", action="store_true",
+                   help="leave out rows with errors (listed in rejected.csv) instead of refusing to run")
+    _common_options(p)
+
+    p = commands.add_parser("demo", help="run the workflow on a built-in synthetic drill program",
+                            description="Generate the invented Tarn Hill drill program with a known "
+                                        "anisotropy, run the workflow on it and compare with the truth.")
+    p.add_argument("--seed", type=int, default=2026, help="random seed of the program (default 2026)")
+    _common_options(p, out_default="drillaxis-demo")
+    return parser
+
+
+# --------------------------------------------------------------------------------------------
+# shared steps
+# --------------------------------------------------------------------------------------------
+
+
+def _read(args, console=None):
+    from .tables import parse_column_options, read_tables
+
+    return read_tables(
+        args.collars, args.surveys, args.intervals,
+        columns=parse_column_options(args.column),
+        dip_convention=args.dip_convention,
+        below_detection=args.below_detection,
+        missing_markers=args.missing_marker,
+        missing_codes=args.missing_code,
+        category_columns=args.category,
+    )
+
+
+def _out_dir(path) -> Path:
+    out = Path(path)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise UsageError(f"--out {str(path)!r}: cannot create the folder ({exc.strerror}).") from None
+    if not out.is_dir():
+        raise UsageError(f"--out {str(path)!r} is not a folder.")
+    return out
+
+
+def _write_findings(tables, rejected, out: Path) -> None:
+    from .outputs import write_csv
+
+    write_csv(tables.findings, out / "findings.csv")
+    write_csv(rejected, out / "rejected.csv")
+
+
+def _rows_would_reject(tables):
+    _, rejected = tables.usable(skip_bad_rows=True)
+    return rejected
+
+
+def _findings_summary(tables, console: Console, out: Path, limit: int = 10):
+    counts = tables.row_counts()
+    console.say(
+        f"tables: {counts['collars']} collar rows, {counts['surveys']} survey rows, "
+        f"{counts['intervals']} interval rows"
+    )
+    console.say(f"  value columns: {', '.join(tables.value_columns) or '(none)'}")
+    console.say(f"  category columns: {', '.join(tables.category_columns) or '(none)'}")
+    findings = tables.findings
+    console.say(f"findings: {tables.error_count} error(s), {tables.warning_count} warning(s) "
+                f"-> {out / 'findings.csv'}")
+    if len(findings):
+        by = findings.groupby(["table", "severity"]).size()
+        for (table, severity), n in by.items():
+            console.say(f"  {table}: {n} {severity}(s)")
+        shown = findings.sort_values("severity", kind="stable").head(limit)
+        for row in shown.itertuples(index=False):
+            line = "" if row.line is None or str(row.line) == "<NA>" else f" line {row.line}"
+            console.say(f"  {row.severity}: {row.table}{line} hole {row.hole!r} {row.column}: {row.problem}")
+        if len(findings) > limit:
+            console.say(f"  ... and {len(findings) - limit} more in findings.csv")
+
+
+# --------------------------------------------------------------------------------------------
+# commands
+# --------------------------------------------------------------------------------------------
+
+
+def cmd_check(args, console: Console) -> int:
+    out = _out_dir(args.out)
+    with console.stages(["reading and validating", "writing findings"]) as step:
+        step("reading and validating")
+        tables = _read(args)
+        step("writing findings")
+        rejected = _rows_would_reject(tables)
+        _write_findings(tables, rejected, out)
+    _findings_summary(tables, console, out)
+    if tables.error_count:
+        console.say(f"{len(rejected)} row(s) would be left out with --skip-bad-rows -> {out / 'rejected.csv'}")
+        return 1
+    return 0
+
+
+def _desurvey(tables, args, out: Path, console: Console, step):
+    from .desurvey import Desurvey, sample_positions
+    from .outputs import write_csv
+
+    step("desurveying")
+    trace = Desurvey(args.method, args.dip_convention, args.azimuth_offset).fit(tables.collars, tables.surveys)
+    traces = trace.traces(args.step)
+    samples = sample_positions(trace, tables.intervals, tables.value_columns, tables.category_columns)
+    step("writing traces and samples")
+    write_csv(traces, out / "traces.csv")
+    write_csv(samples, out / "samples.csv")
+    return trace, traces, samples
+
+
+def _desurvey_summary(trace, traces, samples, method, out, console):
+    lo = samples[["x", "y", "z"]].min().to_numpy()
+    hi = samples[["x", "y", "z"]].max().to_numpy()
+    console.say(f"desurvey ({method}): {len(trace.hole_ids_)} holes, {len(trace.depth_)} stations, "
+                f"{len(traces)} trace points -> {out / 'traces.csv'}")
+    console.say(f"  {len(samples)} samples -> {out / 'samples.csv'}")
+    if len(samples):
+        console.say(f"  extent: east {lo[0]:.1f} to {hi[0]:.1f}, north {lo[1]:.1f} to {hi[1]:.1f}, "
+                    f"elevation {lo[2]:.1f} to {hi[2]:.1f} m")
+
+
+def cmd_desurvey(args, console: Console) -> int:
+    out = _out_dir(args.out)
+    with console.stages(["reading and validating", "desurveying", "writing traces and samples"]) as step:
+        step("reading and validating")
+        tables = _read(args)
+        rejected = _rows_would_reject(tables)
+        _write_findings(tables, rejected if args.skip_bad_rows else rejected.iloc[:0], out)
+        tables, rejected = tables.usable(skip_bad_rows=args.skip_bad_rows)
+        trace, traces, samples = _desurvey(tables, args, out, console, step)
+    if len(rejected):
+        console.say(f"{len(rejected)} row(s) left out -> {out / 'rejected.csv'}")
+    _desurvey_summary(trace, traces, samples, args.method, out, console)
+    return 0
+
+
+def cmd_demo(args, console: Console) -> int:
+    from synthetic_holes import ProgramSpec, generate_program
+
+    started = time.perf_counter()
+    out = _out_dir(args.out)
+    names = ["generating the drill program", "reading and validating", "desurveying",
+             "writing traces and samples"]
+    with console.stages(names) as step:
+        step(names[0])
+        program = generate_program(ProgramSpec(), seed=args.seed)
+        paths = program.write(out / "data")
+        step(names[1])
+        table_args = argparse.Namespace(
+            collars=paths["collars"], surveys=paths["surveys"], intervals=paths["intervals"], column=[],
+            dip_convention="negative-down", azimuth_offset=0.0, below_detection="half",
+            missing_marker=[], missing_code=[], category=[], method="minimum-curvature", step=1.0,
+        )
+        tables = _read(table_args)
+        rejected = _rows_would_reject(tables)
+        _write_findings(tables, rejected, out)
+        tables, rejected = tables.usable(skip_bad_rows=False)
+        trace, traces, samples = _desurvey(tables, table_args, out, console, step)
+    truth = program.truth
+    console.say(f"drillaxis demo: the invented Tarn Hill program (seed {args.seed}) -> {out / 'data'}")
+    _findings_summary(tables, console, out, limit=5)
+    _desurvey_summary(trace, traces, samples, "minimum-curvature", out, console)
+    model = truth["model"]
+    o = model["orientation"]
+    console.say("truth behind the grades (truth.json):")
+    console.say(f"  nugget {model['nugget']:.2f}; " + "; ".join(
+        f"{s['shape']} sill {s['sill']:.2f} ranges {s['ranges']['major']:.0f} / "
+        f"{s['ranges']['semi_major']:.0f} / {s['ranges']['minor']:.0f} m" for s in model["structures"]))
+    console.say(f"  major axis trend {o['major']['trend']:.1f} plunge {o['major']['plunge']:.1f}; "
+                f"plane dip direction {o['plane']['dip_direction']:.1f} dip {o['plane']['dip']:.1f}; "
+                f"pitch {o['pitch']:.1f}")
+    console.say("  (compositing, variograms and the fitted ellipsoid join the demo in later releases)")
+    console.say(f"done in {time.perf_counter() - started:.1f} s")
+    return 0
+
+
+COMMANDS = {"check": cmd_check, "desurvey": cmd_desurvey, "demo": cmd_demo}
+
+
+def main(argv=None) -> int:
+    _safe_streams()
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    console = Console(getattr(args, "quiet", False))
+    try:
+        return COMMANDS[args.command](args, console)
+    except DrillaxisError as exc:
+        print(f"drillaxis {args.command}: error: {exc}", file=sys.stderr)
+        return exc.exit_code
+    except KeyboardInterrupt:
+        print("drillaxis: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,873 @@
+"""Reading collar, survey and interval tables, matching their columns, and validating them.
+
+The three tables are read from CSV (delimiter sniffed, BOM and CRLF tolerated) or Parquet. Every row
+keeps the line number an editor shows for it (header = line 1; for Parquet, the first record is line
+1). Column names are matched against the synonyms of docs/conventions.md, or named with
+``--column ROLE=NAME``. Every problem found is collected as a finding
+``(table, line, hole, column, severity, problem)``; nothing stops at the first fault.
+
+Example
+-------
+>>> from synthetic_holes import ProgramSpec, generate_program
+>>> import tempfile, pathlib
+>>> folder = pathlib.Path(tempfile.mkdtemp())
+>>> paths = generate_program(ProgramSpec(n_along=3, n_lines=2, hole_length_m=60), seed=1).write(folder)
+>>> tables = read_tables(paths["collars"], paths["surveys"], paths["intervals"])
+>>> len(tables.collars), tables.error_count
+(6, 0)
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from ._jit import segmented_running_max
+from .errors import TableError, UsageError, ValidationError, list_some
+
+TABLE_NAMES = ("collars", "surveys", "intervals")
+
+#: Synonyms of each role, already in normalised form (see :func:`normalise_name`).
+ROLE_SYNONYMS: dict[str, tuple[str, ...]] = {
+    "hole": ("hole", "holeid", "holename", "drillhole"),
+    "x": ("x", "east", "easting"),
+    "y": ("y", "north", "northing"),
+    "z": ("z", "rl", "elev", "elevation"),
+    "depth": ("depth", "eoh", "totaldepth", "maxdepth", "length"),
+    "at": ("depth", "at", "md", "distance"),
+    "azimuth": ("azimuth", "azi", "az", "bearing"),
+    "dip": ("dip",),
+    "from": ("from", "depthfrom", "fromm"),
+    "to": ("to", "depthto", "tom"),
+}
+ROLES = tuple(ROLE_SYNONYMS)
+
+#: Roles each table needs (required) and may have (optional).
+TABLE_ROLES: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
+    "collars": (("hole", "x", "y", "z", "depth"), ("azimuth", "dip")),
+    "surveys": (("hole", "at", "azimuth", "dip"), ()),
+    "intervals": (("hole", "from", "to"), ()),
+}
+
+#: Names that mean an angle from vertical: never taken as dip.
+INCLINATION_NAMES = ("inclination", "incl", "inc")
+
+#: Cell texts that mean "no value" (compared in lower case, after stripping spaces).
+MISSING_MARKERS = frozenset({"", "nan", "na", "n/a", "-", "--", "null", "none", "#n/a"})
+
+BELOW_DETECTION_RULES = ("half", "limit", "zero", "missing")
+
+# Coordinates, depths and values beyond these magnitudes are taken as entry errors, not data
+# (common practice: projected coordinates are below 1e7 m; the deepest holes are about 12 km).
+COORDINATE_LIMIT_M = 1e8
+DEPTH_LIMIT_M = 1e5
+VALUE_LIMIT = 1e100  # squares of larger values overflow in variogram sums
+DEPTH_TOLERANCE_M = 1e-6
+
+# Survey pairs with a dogleg of at least DOGLEG_MIN_DEG and a severity above
+# DOGLEG_SEVERITY_DEG_PER_30M are warned about (common practice: such bends usually come from a
+# mistyped angle or magnetic interference, rarely from the hole itself).
+DOGLEG_MIN_DEG = 5.0
+DOGLEG_SEVERITY_DEG_PER_30M = 10.0
+
+_NUMBER = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
+_BELOW_RE = re.compile(rf"^<\s*({_NUMBER})$")
+_ABOVE_RE = re.compile(rf"^>\s*({_NUMBER})$")
+_DECIMAL_COMMA_RE = r"[-+]?\d*,\d+"
+
+# Status of each parsed cell.
+OK, MISSING, TEXT, BELOW, ABOVE, NOT_FINITE = 0, 1, 2, 3, 4, 5
+
+
+def normalise_name(name: str) -> str:
+    """Lower case, with spaces, dots, dashes and underscores removed."""
+    return re.sub(r"[\s._\-]", "", str(name)).lower()
+
+
+# --------------------------------------------------------------------------------------------
+# findings
+# --------------------------------------------------------------------------------------------
+
+FINDING_COLUMNS = ["table", "line", "hole", "column", "severity", "problem"]
+
+
+class Findings:
+    """A growing list of findings; rows are ``(table, line, hole, column, severity, problem)``."""
+
+    def __init__(self):
+        self._rows: list[tuple] = []
+
+    def add(self, table, line, hole, column, severity, problem):
+        self._rows.append((table, line, hole, column, severity, problem))
+
+    def add_rows(self, table, lines, holes, column, severity, problems):
+        """Add one finding per row; ``problems`` is a sequence of sentences or one sentence."""
+        if isinstance(problems, str):
+            problems = [problems] * len(lines)
+        for line, hole, problem in zip(lines, holes, problems):
+            self._rows.append((table, int(line), hole, column, severity, problem))
+
+    def extend(self, other: "Findings"):
+        self._rows.extend(other._rows)
+
+    def __len__(self):
+        return len(self._rows)
+
+    def frame(self) -> pd.DataFrame:
+        frame = pd.DataFrame(self._rows, columns=FINDING_COLUMNS)
+        frame["line"] = frame["line"].astype("Int64")
+        order = {name: i for i, name in enumerate(TABLE_NAMES)}
+        frame["_t"] = frame["table"].map(order).fillna(len(order))
+        frame = frame.sort_values(["_t", "line"], kind="stable").drop(columns="_t")
+        return frame.reset_index(drop=True)
+
+
+# --------------------------------------------------------------------------------------------
+# reading one file
+# --------------------------------------------------------------------------------------------
+
+
+@dataclass
+class RawTable:
+    """A table as read: every cell as found (text for CSV), plus each row's line number."""
+
+    name: str
+    path: str
+    frame: pd.DataFrame
+    lines: np.ndarray
+    delimiter: str | None = None
+    notes: list[str] = field(default_factory=list)
+
+
+def _sniff_delimiter(text: str, path: str) -> str:
+    sample_lines = [line for line in text.splitlines()[:50] if line.strip()]
+    sample = "\n".join(sample_lines)
+    try:
+        return csv.Sniffer().sniff(sample, delimiters=",;\t|").delimiter
+    except csv.Error:
+        header = sample_lines[0] if sample_lines else ""
+        counts = {d: header.count(d) for d in ",;\t|"}
+        best = max(counts, key=counts.get)
+        if counts[best] == 0:
+            raise TableError(
+                f"{path}: cannot tell how the columns are separated: the header line "
+                f"{header[:80]!r} holds no comma, semicolon, tab or '|'. Save the table as CSV with "
+                "one of those delimiters."
+            ) from None
+        return best
+
+
+def _decode(data: bytes, path: str) -> tuple[str, list[str]]:
+    if not data.strip():
+        raise TableError(f"{path}: the file is empty. Export the table again with a header line.")
+    head = data[:65536]
+    if b"\x00" in head:
+        raise TableError(
+            f"{path}: this is not a text table (it holds NUL bytes: a binary file, or UTF-16 "
+            "text). Save it as CSV in UTF-8, or give a Parquet file ending in .parquet."
+        )
+    notes = []
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        text = data.decode("cp1252", errors="replace")
+        notes.append("the file is not UTF-8; it was read as Windows-1252 text")
+    return text, notes
+
+
+def _record_lines(text: str, delimiter: str, n_rows: int) -> np.ndarray:
+    """Line number (header = 1) at which each data record starts, blank lines included."""
+    physical = text.count("\n") + (0 if text.endswith("\n") else 1)
+    if physical == n_rows + 1:
+        return np.arange(2, n_rows + 2, dtype=np.int64)
+    # Quoted fields hold line breaks: let the csv module count physical lines.
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
+    starts = []
+    previous_end = 0
+    for _ in reader:
+        starts.append(previous_end + 1)
+        previous_end = reader.line_num
+    starts = np.asarray(starts[1:], dtype=np.int64)  # drop the header record
+    if len(starts) != n_rows:  # pandas and csv disagree: fall back to counting records
+        return np.arange(2, n_rows + 2, dtype=np.int64)
+    return starts
+
+
+def read_raw_table(path, name: str) -> RawTable:
+    """Read one table file as found; raise :class:`TableError` with a clear message when it cannot."""
+    path = str(path)
+    p = Path(path)
+    if not p.exists():
+        raise UsageError(f"{name} file {path!r} does not exist. Check the path given to --{name}.")
+    if p.is_dir():
+        raise UsageError(f"{name} path {path!r} is a folder; give the table file.")
+    if p.suffix.lower() in (".parquet", ".pq"):
+        return _read_parquet(p, name)
+    try:
+        data = p.read_bytes()
+    except OSError as exc:
+        raise UsageError(f"{name} file {path!r} cannot be read: {exc.strerror}.") from None
+    text, notes = _decode(data, path)
+    delimiter = _sniff_delimiter(text, path)
+    header = next(csv.reader(io.StringIO(text, newline=""), delimiter=delimiter), [])
+    names = [h.strip() for h in header]
+    seen: dict[str, int] = {}
+    for i, h in enumerate(names, start=1):
+        if h and h in seen:
+            raise TableError(
+                f"{path}, line 1: column {h!r} appears twice (columns {seen[h]} and {i}). "
+                "Rename one of them."
+            )
+        seen.setdefault(h, i)
+    try:
+        frame = pd.read_csv(
+            io.StringIO(text),
+            sep=delimiter,
+            dtype=str,
+            keep_default_na=False,
+            skip_blank_lines=False,
+            engine="c",
+        )
+    except pd.errors.ParserError as exc:
+        message = str(exc)
+        found = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", message)
+        if found:
+            expected, line, saw = found.groups()
+            raise TableError(
+                f"{path}, line {line}: the row has {saw} fields but the header has {expected}. "
+                "Check the delimiter and the quoting on that line."
+            ) from None
+        raise TableError(f"{path}: cannot be read as a table ({message.strip()}).") from None
+    except (pd.errors.EmptyDataError, UnicodeError, ValueError) as exc:
+        raise TableError(f"{path}: cannot be read as a table ({exc}).") from None
+    frame.columns = [str(c).strip() for c in frame.columns]
+    lines = _record_lines(text, delimiter, len(frame))
+    # Unnamed columns: drop when empty (a trailing delimiter), else give them a plain name.
+    keep = []
+    for i, column in enumerate(frame.columns):
+        if column == "" or column.startswith("Unnamed:"):
+            if (frame[column].str.strip() == "").all():
+                continue
+            frame = frame.rename(columns={column: f"column_{i + 1}"})
+            keep.append(f"column_{i + 1}")
+        else:
+            keep.append(column)
+    frame = frame[keep]
+    if len(frame.columns):
+        blank = (frame.apply(lambda s: s.str.strip()) == "").all(axis=1).to_numpy()
+        if blank.any():
+            frame = frame.loc[~blank].reset_index(drop=True)
+            lines = lines[~blank]
+    if len(frame) == 0:
+        raise TableError(f"{path}: the table has a header but no rows. Export it again with its data.")
+    return RawTable(name, path, frame, lines, delimiter, notes)
+
+
+def _read_parquet(p: Path, name: str) -> RawTable:
+    try:
+        frame = pd.read_parquet(p)
+    except Exception as exc:  # pyarrow raises many types for corrupt files
+        raise TableError(f"{p}: cannot be read as a Parquet table ({type(exc).__name__}: {exc}).") from None
+    frame.columns = [str(c).strip() for c in frame.columns]
+    if len(frame) == 0:
+        raise TableError(f"{p}: the Parquet table has no rows.")
+    frame = frame.reset_index(drop=True)
+    return RawTable(name, str(p), frame, np.arange(1, len(frame) + 1, dtype=np.int64))
+
+
+# --------------------------------------------------------------------------------------------
+# column matching
+# --------------------------------------------------------------------------------------------
+
+
+def parse_column_options(items) -> dict[str, str]:
+    """Turn ``["hole=BHID", "dip=DIP_DEG"]`` into ``{"hole": "BHID", "dip": "DIP_DEG"}``."""
+    explicit: dict[str, str] = {}
+    for item in items or ():
+        if "=" not in item:
+            raise UsageError(f"--column {item!r}: write ROLE=NAME, for example --column hole=BHID.")
+        role, name = (part.strip() for part in item.split("=", 1))
+        role = role.lower()
+        if role not in ROLES:
+            raise UsageError(f"--column {item!r}: unknown role {role!r}; roles are {', '.join(ROLES)}.")
+        if not name:
+            raise UsageError(f"--column {item!r}: the column name is empty.")
+        explicit[role] = name
+    return explicit
+
+
+def match_columns(raw: RawTable, explicit: dict[str, str] | None = None) -> dict[str, str]:
+    """Map each role of the table to one of its columns, or raise a clear :class:`TableError`."""
+    explicit = explicit or {}
+    required, optional = TABLE_ROLES[raw.name]
+    by_norm: dict[str, list[str]] = {}
+    for column in raw.frame.columns:
+        by_norm.setdefault(normalise_name(column), []).append(column)
+    found = ", ".join(repr(c[:40]) for c in raw.frame.columns)
+    mapping: dict[str, str] = {}
+    problems = []
+    for role in required + optional:
+        if role in explicit and normalise_name(explicit[role]) in by_norm:
+            name = explicit[role]
+            if role == "dip" and normalise_name(name) in INCLINATION_NAMES:
+                problems.append(
+                    f"column {name!r} is an inclination (measured from vertical), not a dip "
+                    "(measured from horizontal, negative down); add a dip column "
+                    "(dip = inclination - 90 for holes drilled downward)"
+                )
+                continue
+            candidates = by_norm[normalise_name(name)]
+        else:
+            candidates = [c for syn in ROLE_SYNONYMS[role] for c in by_norm.get(syn, [])]
+        candidates = [c for c in dict.fromkeys(candidates) if c not in mapping.values()]
+        if len(candidates) == 1:
+            mapping[role] = candidates[0]
+        elif len(candidates) > 1:
+            problems.append(
+                f"more than one column could be the {role} column ({list_some(candidates)}); "
+                f"name one with --column {role}=NAME"
+            )
+        elif role in required:
+            hint = f"name it with --column {role}=NAME"
+            if role == "dip" and any(normalise_name(c) in INCLINATION_NAMES for c in raw.frame.columns):
+                hint = (
+                    "the table has an inclination column, which is measured from vertical and is "
+                    "never taken as dip; add a dip column (dip = inclination - 90 for holes drilled "
+                    "downward)"
+                )
+            problems.append(f"no {role} column ({hint})")
+    if problems:
+        raise TableError(
+            f"{raw.path} ({raw.name}): " + "; ".join(problems) + f". Columns found: {found}."
+        )
+    return mapping
+
+
+# --------------------------------------------------------------------------------------------
+# parsing cells
+# --------------------------------------------------------------------------------------------
+
+
+def _as_text(series: pd.Series) -> pd.Series:
+    text = series.astype(object).where(series.notna(), "")
+    return text.astype(str).str.strip()
+
+
+def parse_numbers(
+    series: pd.Series,
+    *,
+    detection: bool = False,
+    below_detection: str = "half",
+    missing_markers=MISSING_MARKERS,
+    decimal_comma: bool = False,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Parse a column of cells into float64 values and a status code per cell.
+
+    Status codes: OK, MISSING (empty or a missing marker), TEXT (not a number), BELOW and ABOVE
+    (detection-limit strings such as ``<0.01`` and ``>10``, only when ``detection``), NOT_FINITE.
+    Below-detection cells take half the limit (``below_detection="half"``), the limit, zero or
+    missing; above-limit cells take the limit.
+    """
+    n = len(series)
+    if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(series.dtype):
+        values = np.array(series.to_numpy(dtype=np.float64, na_value=np.nan))
+        status = np.where(np.isnan(values), MISSING, OK).astype(np.int8)
+        status[np.isinf(values)] = NOT_FINITE
+        return values, status
+    text = _as_text(series)
+    lower = text.str.lower()
+    status = np.full(n, OK, dtype=np.int8)
+    missing = lower.isin(missing_markers).to_numpy()
+    status[missing] = MISSING
+    if decimal_comma:
+        comma = text.str.fullmatch(_DECIMAL_COMMA_RE).to_numpy(dtype=bool)
+        if comma.any():
+            text = text.where(~comma, text.str.replace(",", ".", regex=False))
+    values = np.array(pd.to_numeric(text.where(~missing, ""), errors="coerce"), dtype=np.float64)
+    unparsed = np.isnan(values) & ~missing
+    # pandas reads "nan"/"inf" spellings; keep infinities as NOT_FINITE
+    status[np.isinf(values)] = NOT_FINITE
+    if unparsed.any():
+        idx = np.flatnonzero(unparsed)
+        cells = text.iloc[idx]
+        if detection:
+            below = cells.str.extract(_BELOW_RE, expand=False)
+            above = cells.str.extract(_ABOVE_RE, expand=False)
+            limit_b = pd.to_numeric(below, errors="coerce").to_numpy(dtype=np.float64)
+            limit_a = pd.to_numeric(above, errors="coerce").to_numpy(dtype=np.float64)
+            is_b = ~np.isnan(limit_b)
+            is_a = ~np.isnan(limit_a)
+            factor = {"half": 0.5, "limit": 1.0, "zero": 0.0, "missing": np.nan}[below_detection]
+            values[idx[is_b]] = limit_b[is_b] * factor
+            status[idx[is_b]] = BELOW
+            values[idx[is_a]] = limit_a[is_a]
+            status[idx[is_a]] = ABOVE
+            rest = idx[~is_b & ~is_a]
+        else:
+            rest = idx
+        status[rest] = TEXT
+    return values, status
+
+
+# --------------------------------------------------------------------------------------------
+# the tables
+# --------------------------------------------------------------------------------------------
+
+
+@dataclass
+class DrillTables:
+    """The three tables, typed, with every finding of reading and validation.
+
+    Role columns are renamed to ``hole, x, y, z, depth, azimuth, dip`` (collars), ``hole, at,
+    azimuth, dip`` (surveys) and ``hole, from, to`` (intervals); interval value and category
+    columns keep their names. ``_line`` holds each row's line number in its file.
+    """
+
+    collars: pd.DataFrame
+    surveys: pd.DataFrame
+    intervals: pd.DataFrame
+    value_columns: list[str]
+    category_columns: list[str]
+    sources: dict[str, str]
+    columns: dict[str, dict[str, str]]
+    findings: pd.DataFrame
+    options: dict = field(default_factory=dict)
+
+    @property
+    def error_count(self) -> int:
+        return int((self.findings["severity"] == "error").sum())
+
+    @property
+    def warning_count(self) -> int:
+        return int((self.findings["severity"] == "warning").sum())
+
+    def row_counts(self) -> dict[str, int]:
+        return {name: len(getattr(self, name)) for name in TABLE_NAMES}
+
+    def usable(self, skip_bad_rows: bool = False) -> tuple["DrillTables", pd.DataFrame]:
+        """Tables to compute with, and the rejected rows ``(table, line, hole, reason)``.
+
+        With errors present and ``skip_bad_rows`` false this raises :class:`ValidationError`. With
+        ``skip_bad_rows``, every row that holds an error is rejected, with the surveys and intervals
+        of a rejected collar and the intervals of holes without a usable collar.
+        """
+        errors = self.findings[self.findings["severity"] == "error"]
+        if len(errors) and not skip_bad_rows:
+            first = errors.iloc[0]
+            where = f"{self.sources.get(first['table'], first['table'])}"
+            if pd.notna(first["line"]):
+                where += f", line {int(first['line'])}"
+            raise ValidationError(
+                f"the tables hold {len(errors)} error(s); the first: {where}, hole "
+                f"{first['hole']!r}, column {first['column']!r}: {first['problem']}. Run "
+                "'drillaxis check' for the full list, fix the rows, or pass --skip-bad-rows to leave "
+                "them out (they go to rejected.csv).",
+                findings=self.findings,
+            )
+        rejected = []
+
+        def reject(table: str, frame: pd.DataFrame, mask: np.ndarray, reasons) -> pd.DataFrame:
+            if mask.any():
+                part = frame.loc[mask, ["_line", "hole"]]
+                reason = reasons if isinstance(reasons, str) else np.asarray(reasons, dtype=object)[mask]
+                rejected.append(
+                    pd.DataFrame(
+                        {"table": table, "line": part["_line"].to_numpy(), "hole": part["hole"].to_numpy(),
+                         "reason": reason}
+                    )
+                )
+            return frame.loc[~mask].reset_index(drop=True)
+
+        def error_reasons(table: str, frame: pd.DataFrame):
+            rows = errors[errors["table"] == table]
+            text = rows.groupby("line")["problem"].agg("; ".join)
+            reasons = frame["_line"].map(text)
+            return reasons.notna().to_numpy(), reasons.to_numpy()
+
+        mask, reasons = error_reasons("collars", self.collars)
+        collars = reject("collars", self.collars, mask, reasons)
+        good_holes = set(collars["hole"])
+        lost_holes = set(self.collars.loc[mask, "hole"])
+        tables = {}
+        for name in ("surveys", "intervals"):
+            frame = getattr(self, name)
+            mask, reasons = error_reasons(name, frame)
+            frame = reject(name, frame, mask, reasons)
+            lost = (~frame["hole"].isin(good_holes)).to_numpy()
+            why = np.where(
+                frame["hole"].isin(lost_holes).to_numpy(),
+                "the collar row of this hole was rejected",
+                "the hole has no usable collar row",
+            )
+            tables[name] = reject(name, frame, lost, why)
+        rejected_frame = (
+            pd.concat(rejected, ignore_index=True)
+            if rejected
+            else pd.DataFrame(columns=["table", "line", "hole", "reason"])
+        )
+        clean = DrillTables(
+            collars, tables["surveys"], tables["intervals"], list(self.value_columns),
+            list(self.category_columns), dict(self.sources), dict(self.columns), self.findings,
+            dict(self.options),
+        )
+        return clean, rejected_frame
+
+
+def read_tables(
+    collars,
+    surveys,
+    intervals,
+    *,
+    columns: dict[str, str] | None = None,
+    dip_convention: str = "negative-down",
+    below_detection: str = "half",
+    missing_markers=(),
+    missing_codes=(),
+    category_columns=(),
+) -> DrillTables:
+    """Read and validate the three tables; every problem becomes a finding, none raises.
+
+    Parameters
+    ----------
+    collars, surveys, intervals : path-like
+        CSV or Parquet files.
+    columns : dict, optional
+        Explicit role -> column name (the ``--column`` option).
+    dip_convention : {"negative-down", "positive-down"}
+        Sign of dip for holes drilled downward; used here for the dogleg check.
+    below_detection : {"half", "limit", "zero", "missing"}
+        What a value such as ``<0.01`` becomes.
+    missing_markers : sequence of str
+        Further cell texts that mean "not sampled" (for example ``NS``), besides the built-in ones.
+    missing_codes : sequence of float
+        Numbers in value columns that mean "not sampled" (for example ``-99``).
+    category_columns : sequence of str
+        Interval columns to treat as text categories even when they hold numbers.
+
+    Raises
+    ------
+    TableError
+        When a file cannot be read as a table or lacks a required column. Row-level problems never
+        raise: they are findings.
+    """
+    if dip_convention not in ("negative-down", "positive-down"):
+        raise UsageError(f"dip convention {dip_convention!r}: use negative-down or positive-down.")
+    if below_detection not in BELOW_DETECTION_RULES:
+        raise UsageError(
+            f"below-detection rule {below_detection!r}: use one of {', '.join(BELOW_DETECTION_RULES)}."
+        )
+    explicit = dict(columns or {})
+    raws = {name: read_raw_table(path, name) for name, path in
+            zip(TABLE_NAMES, (collars, surveys, intervals))}
+    for role, name in explicit.items():
+        if not any(
+            normalise_name(name) in {normalise_name(c) for c in raw.frame.columns}
+            and role in sum(TABLE_ROLES[raw.name], ())
+            for raw in raws.values()
+        ):
+            raise TableError(
+                f"--column {role}={name}: no table that has a {role} column holds a column named "
+                f"{name!r}. Columns found: "
+                + "; ".join(f"{raw.name}: {', '.join(map(repr, raw.frame.columns))}" for raw in raws.values())
+                + "."
+            )
+    markers = MISSING_MARKERS | {str(m).strip().lower() for m in missing_markers}
+    findings = Findings()
+    mappings = {name: match_columns(raw, explicit) for name, raw in raws.items()}
+    for raw in raws.values():
+        for note in raw.notes:
+            findings.add(raw.name, None, "", "", "warning", note)
+    frames = {}
+    for name, raw in raws.items():
+        frames[name] = _typed_role_columns(raw, mappings[name], markers, findings)
+    value_columns, category_columns = _interval_data_columns(
+        raws["intervals"], mappings["intervals"], frames["intervals"], markers, missing_codes,
+        below_detection, set(category_columns), findings,
+    )
+    _validate(frames, value_columns, dip_convention, findings, {n: r.path for n, r in raws.items()})
+    return DrillTables(
+        frames["collars"], frames["surveys"], frames["intervals"], value_columns, category_columns,
+        {n: r.path for n, r in raws.items()}, mappings, findings.frame(),
+        {"dip_convention": dip_convention, "below_detection": below_detection},
+    )
+
+
+def _typed_role_columns(raw: RawTable, mapping: dict, markers, findings: Findings) -> pd.DataFrame:
+    frame = pd.DataFrame({"_line": raw.lines})
+    hole = _as_text(raw.frame[mapping["hole"]])
+    frame["hole"] = hole.to_numpy(dtype=object)
+    holes = frame["hole"].to_numpy()
+    for role, column in mapping.items():
+        if role == "hole":
+            continue
+        values, status = parse_numbers(raw.frame[column], missing_markers=markers)
+        frame[role] = values
+        frame[f"_status_{role}"] = status
+        bad = status == TEXT
+        if bad.any():
+            cells = _as_text(raw.frame[column].iloc[np.flatnonzero(bad)])
+            findings.add_rows(
+                raw.name, raw.lines[bad], holes[bad], column, "error",
+                [f"{c[:40]!r} is not a number; {column} needs a number here" for c in cells],
+            )
+        bad = status == NOT_FINITE
+        findings.add_rows(raw.name, raw.lines[bad], holes[bad], column, "error",
+                          f"{column} is not a finite number")
+    empty = frame["hole"] == ""
+    findings.add_rows(raw.name, raw.lines[empty], holes[empty], mapping["hole"], "error",
+                      "the hole id is empty; every row needs the id of its hole")
+    return frame
+
+
+def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_detection,
+                           forced_categories, findings):
+    role_columns = set(mapping.values())
+    holes = frame["hole"].to_numpy()
+    lines = raw.lines
+    value_columns, category_columns = [], []
+    reserved = {"hole", "from", "to", "_line"}
+    forced = {normalise_name(c) for c in forced_categories}
+    codes = np.asarray([float(c) for c in missing_codes], dtype=np.float64)
+    decimal_comma = raw.delimiter not in (None, ",")
+    for column in raw.frame.columns:
+        if column in role_columns:
+            continue
+        if column in reserved or column.startswith("_status_"):
+            raise TableError(
+                f"{raw.path}: interval column {column!r} has a name drillaxis uses for its own "
+                "columns; rename it."
+            )
+        series = raw.frame[column]
+        if normalise_name(column) in forced:
+            frame[column] = _as_text(series).to_numpy(dtype=object)
+            category_columns.append(column)
+            continue
+        values, status = parse_numbers(series, detection=True, below_detection=below_detection,
+                                       missing_markers=markers, decimal_comma=decimal_comma)
+        present = status != MISSING
+        numeric = np.isin(status, (OK, BELOW, ABOVE, NOT_FINITE))
+        if present.sum() and numeric.sum() < 0.8 * present.sum():
+            frame[column] = _as_text(series).to_numpy(dtype=object)
+            category_columns.append(column)
+            continue
+        value_columns.append(column)
+        if len(codes):
+            coded = np.isin(values, codes) & (status == OK)
+            values[coded] = np.nan
+            status[coded] = MISSING
+        frame[column] = values
+        if not present.any():
+            findings.add("intervals", None, "", column, "warning", f"column {column!r} holds no values")
+        cells = None
+        for code, severity, sentence in (
+            (TEXT, "error", "{cell} is not a number in value column {col}; fix it, or name the "
+                            "marker with --missing-marker if it means not sampled"),
+            (NOT_FINITE, "error", "{cell} is not a finite number"),
+            (BELOW, "warning", "{cell} is below the detection limit; taken as {value:g} "
+                               f"(rule: {below_detection})"),
+            (ABOVE, "warning", "{cell} is above the upper detection limit; taken as {value:g}"),
+        ):
+            bad = status == code
+            if not bad.any():
+                continue
+            cells = _as_text(series.iloc[np.flatnonzero(bad)]).to_numpy()
+            findings.add_rows(
+                "intervals", lines[bad], holes[bad], column, severity,
+                [sentence.format(cell=repr(c[:40]), col=repr(column), value=v)
+                 for c, v in zip(cells, values[bad])],
+            )
+        huge = (status == OK) & (np.abs(values) > VALUE_LIMIT)
+        findings.add_rows("intervals", lines[huge], holes[huge], column, "error",
+                          [f"value {v:g} is too large to compute with (limit {VALUE_LIMIT:g})"
+                           for v in values[huge]])
+        negative = (status == OK) & (values < 0)
+        findings.add_rows(
+            "intervals", lines[negative], holes[negative], column, "warning",
+            [f"negative value {v:g}; if it is a code for not sampled or below detection, name it "
+             "with --missing-code" for v in values[negative]],
+        )
+    return value_columns, category_columns
+
+
+def _missing(table, frame, role, column_name, findings, what):
+    status = frame[f"_status_{role}"].to_numpy()
+    bad = status == MISSING
+    findings.add_rows(table, frame["_line"].to_numpy()[bad], frame["hole"].to_numpy()[bad],
+                      column_name, "error", what)
+    return status == OK
+
+
+def _validate(frames, value_columns, dip_convention, findings: Findings, paths):
+    collars, surveys, intervals = frames["collars"], frames["surveys"], frames["intervals"]
+    c_line, c_hole = collars["_line"].to_numpy(), collars["hole"].to_numpy()
+
+    # ---- collars
+    known = collars["hole"] != ""
+    dup = (collars["hole"].duplicated(keep=False) & known).to_numpy()
+    if dup.any():
+        groups = collars[dup].groupby("hole")["_line"].apply(lambda s: ", ".join(map(str, s)))
+        findings.add_rows(
+            "collars", c_line[dup], c_hole[dup], "hole", "error",
+            [f"hole id {h!r} is used by more than one collar row (lines {groups[h]}); hole ids "
+             "must be unique" for h in c_hole[dup]],
+        )
+    for role in ("x", "y", "z"):
+        ok = _missing("collars", collars, role, role, findings,
+                      f"the collar has no {role} coordinate")
+        values = collars[role].to_numpy()
+        huge = ok & (np.abs(values) > COORDINATE_LIMIT_M)
+        findings.add_rows("collars", c_line[huge], c_hole[huge], role, "error",
+                          [f"{role} = {v:g} is not a plausible coordinate in metres" for v in values[huge]])
+    ok = _missing("collars", collars, "depth", "depth", findings,
+                  "the collar has no end-of-hole depth")
+    depth = collars["depth"].to_numpy()
+    bad = ok & (depth <= 0)
+    findings.add_rows("collars", c_line[bad], c_hole[bad], "depth", "error",
+                      [f"end-of-hole depth {v:g} must be above zero" for v in depth[bad]])
+    bad = ok & (depth > DEPTH_LIMIT_M)
+    findings.add_rows("collars", c_line[bad], c_hole[bad], "depth", "error",
+                      [f"end-of-hole depth {v:g} m is not plausible" for v in depth[bad]])
+    for role in ("azimuth", "dip"):
+        if role in collars:
+            _angle_ranges("collars", collars, role, findings)
+
+    end_depth = dict(zip(collars["hole"], collars["depth"]))
+    collar_holes = set(collars["hole"][known])
+
+    # ---- surveys
+    s_line, s_hole = surveys["_line"].to_numpy(), surveys["hole"].to_numpy()
+    unknown = ((surveys["hole"] != "") & ~surveys["hole"].isin(collar_holes)).to_numpy()
+    findings.add_rows("surveys", s_line[unknown], s_hole[unknown], "hole", "error",
+                      [f"hole {h!r} has no collar row" for h in s_hole[unknown]])
+    ok_at = _missing("surveys", surveys, "at", "depth", findings, "the survey row has no depth")
+    at = surveys["at"].to_numpy()
+    bad = ok_at & (at < 0)
+    findings.add_rows("surveys", s_line[bad], s_hole[bad], "depth", "error",
+                      [f"survey depth {v:g} is negative" for v in at[bad]])
+    eoh = surveys["hole"].map(end_depth).to_numpy(dtype=np.float64)
+    past = ok_at & (at > eoh + DEPTH_TOLERANCE_M)
+    findings.add_rows("surveys", s_line[past], s_hole[past], "depth", "warning",
+                      [f"survey at {a:g} m is past the end of the hole ({e:g} m)"
+                       for a, e in zip(at[past], eoh[past])])
+    ok_az = _missing("surveys", surveys, "azimuth", "azimuth", findings, "the survey row has no azimuth")
+    ok_dip = _missing("surveys", surveys, "dip", "dip", findings, "the survey row has no dip")
+    ok_az &= _angle_ranges("surveys", surveys, "azimuth", findings)
+    ok_dip &= _angle_ranges("surveys", surveys, "dip", findings)
+    usable = (ok_at & (at >= 0) & (surveys["hole"] != "")).to_numpy()
+    key = surveys.loc[usable, ["hole", "at"]]
+    dup = np.zeros(len(surveys), dtype=bool)
+    dup[np.flatnonzero(usable)] = key.duplicated(keep=False).to_numpy()
+    if dup.any():
+        groups = surveys[dup].groupby(["hole", "at"])["_line"].apply(lambda s: ", ".join(map(str, s)))
+        findings.add_rows(
+            "surveys", s_line[dup], s_hole[dup], "depth", "error",
+            [f"more than one survey row at depth {a:g} (lines {groups[(h, a)]}); keep one"
+             for h, a in zip(s_hole[dup], at[dup])],
+        )
+    _dogleg_warnings(surveys, ok_at & ok_az & ok_dip & ~dup, dip_convention, findings)
+    surveyed = set(surveys["hole"])
+    no_survey = (known & ~collars["hole"].isin(surveyed)).to_numpy()
+    if no_survey.any():
+        has_angles = np.zeros(len(collars), dtype=bool)
+        if "azimuth" in collars and "dip" in collars:
+            has_angles = (collars["_status_azimuth"].to_numpy() == OK) & (
+                collars["_status_dip"].to_numpy() == OK)
+        findings.add_rows(
+            "collars", c_line[no_survey], c_hole[no_survey], "hole", "warning",
+            ["the hole has no survey rows; its collar azimuth and dip are used" if a else
+             "the hole has no survey rows and no collar azimuth and dip; it is taken as vertical"
+             for a in has_angles[no_survey]],
+        )
+
+    # ---- intervals
+    i_line, i_hole = intervals["_line"].to_numpy(), intervals["hole"].to_numpy()
+    unknown = ((intervals["hole"] != "") & ~intervals["hole"].isin(collar_holes)).to_numpy()
+    findings.add_rows("intervals", i_line[unknown], i_hole[unknown], "hole", "error",
+                      [f"hole {h!r} has no collar row" for h in i_hole[unknown]])
+    ok_from = _missing("intervals", intervals, "from", "from", findings, "the interval has no from depth")
+    ok_to = _missing("intervals", intervals, "to", "to", findings, "the interval has no to depth")
+    d_from, d_to = intervals["from"].to_numpy(), intervals["to"].to_numpy()
+    bad = ok_from & (d_from < 0)
+    findings.add_rows("intervals", i_line[bad], i_hole[bad], "from", "error",
+                      [f"from depth {v:g} is negative" for v in d_from[bad]])
+    both = ok_from & ok_to
+    bad = both & (d_from >= d_to)
+    findings.add_rows("intervals", i_line[bad], i_hole[bad], "to", "error",
+                      [f"from {a:g} is not above to {b:g}; an interval needs from < to"
+                       for a, b in zip(d_from[bad], d_to[bad])])
+    eoh = intervals["hole"].map(end_depth).to_numpy(dtype=np.float64)
+    past = ok_to & (d_to > eoh + DEPTH_TOLERANCE_M)
+    findings.add_rows("intervals", i_line[past], i_hole[past], "to", "error",
+                      [f"to {b:g} m is past the end of the hole ({e:g} m)"
+                       for b, e in zip(d_to[past], eoh[past])])
+    good = both & (d_from < d_to) & (d_from >= 0) & (intervals["hole"] != "").to_numpy()
+    _overlap_errors(intervals, good, findings)
+
+    with_intervals = set(intervals["hole"])
+    no_data = (known & ~collars["hole"].isin(with_intervals)).to_numpy()
+    findings.add_rows("collars", c_line[no_data], c_hole[no_data], "hole", "warning",
+                      "the hole has no interval rows")
+
+
+def _angle_ranges(table, frame, role, findings) -> np.ndarray:
+    values = frame[role].to_numpy()
+    status = frame[f"_status_{role}"].to_numpy()
+    if role == "azimuth":
+        bad = (status == OK) & ((values < 0) | (values >= 360))
+        sentence = "azimuth {v:g} is outside [0, 360); write it as a bearing from 0 to below 360"
+    else:
+        bad = (status == OK) & ((values < -90) | (values > 90))
+        sentence = "dip {v:g} is outside [-90, 90]; dip is measured from horizontal"
+    findings.add_rows(table, frame["_line"].to_numpy()[bad], frame["hole"].to_numpy()[bad], role,
+                      "error", [sentence.format(v=v) for v in values[bad]])
+    return ~bad
+
+
+def _dogleg_warnings(surveys, ok, dip_convention, findings):
+    from .desurvey import direction_vectors  # local: desurvey imports numba
+
+    part = surveys.loc[ok, ["hole", "at", "azimuth", "dip", "_line"]].sort_values(["hole", "at"], kind="stable")
+    if len(part) < 2:
+        return
+    t = direction_vectors(part["azimuth"].to_numpy(), part["dip"].to_numpy(), dip_convention)
+    same = part["hole"].to_numpy()[1:] == part["hole"].to_numpy()[:-1]
+    cosang = np.clip(np.einsum("ij,ij->i", t[1:], t[:-1]), -1.0, 1.0)
+    dogleg = np.degrees(np.arccos(cosang))
+    span = np.diff(part["at"].to_numpy())
+    with np.errstate(divide="ignore", invalid="ignore"):
+        severity = dogleg * 30.0 / span
+    bad = same & (dogleg >= DOGLEG_MIN_DEG) & (severity > DOGLEG_SEVERITY_DEG_PER_30M)
+    if bad.any():
+        lines = part["_line"].to_numpy()
+        prev = lines[:-1][bad]
+        findings.add_rows(
+            "surveys", lines[1:][bad], part["hole"].to_numpy()[1:][bad], "azimuth", "warning",
+            [f"the hole bends {d:.1f} degrees from the station at line {p} ({s:.1f} degrees per 30 m); "
+             "check both rows for a mistyped angle" for d, p, s in zip(dogleg[bad], prev, severity[bad])],
+        )
+
+
+def _overlap_errors(intervals, good, findings):
+    part = intervals.loc[good, ["hole", "from", "to", "_line"]].sort_values(["hole", "from", "to"], kind="stable")
+    if len(part) < 2:
+        return
+    holes = part["hole"].to_numpy()
+    d_from, d_to = part["from"].to_numpy(), part["to"].to_numpy()
+    lines = part["_line"].to_numpy()
+    # furthest 'to' reached so far in the hole, and the line that reached it
+    new_hole = np.r_[True, holes[1:] != holes[:-1]]
+    reach, reach_line = segmented_running_max(new_hole, d_to, lines)
+    prior = np.r_[np.nan, reach[:-1]]
+    prior_line = np.r_[0, reach_line[:-1]]
+    bad = ~new_hole & (d_from < prior - DEPTH_TOLERANCE_M)
+    findings.add_rows(
+        "intervals", lines[bad], holes[bad], "from", "error",
+        [f"interval {a:g}-{b:g} overlaps the interval at line {p}, which reaches {r:g}"
+         for a, b, p, r in zip(d_from[bad], d_to[bad], prior_line[bad], prior[bad])],
+    )

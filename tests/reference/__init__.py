@@ -1,0 +1,1 @@
+"""Slow, obvious reference implementations that the fast kernels are compared against."""
