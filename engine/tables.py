@@ -142,7 +142,7 @@ class RawTable:
     frame: pd.DataFrame
     lines: np.ndarray
     delimiter: str | None = None
-    notes: list[str] = field(default_factory=list)
+    notes: list[tuple] = field(default_factory=list)  # (line or None, severity, problem)
 
 
 def _sniff_delimiter(text: str, path: str) -> str:
@@ -177,7 +177,7 @@ def _decode(data: bytes, path: str) -> tuple[str, list[str]]:
         text = data.decode("utf-8-sig")
     except UnicodeDecodeError:
         text = data.decode("cp1252", errors="replace")
-        notes.append("the file is not UTF-8; it was read as Windows-1252 text")
+        notes.append((None, "warning", "the file is not UTF-8; it was read as Windows-1252 text"))
     return text, notes
 
 
@@ -266,6 +266,13 @@ def read_raw_table(path, name: str) -> RawTable:
             lines = lines[~blank]
     if len(frame) == 0:
         raise TableError(f"{path}: the table has a header but no rows. Export it again with its data.")
+    if not text.endswith(("\n", "\r")):
+        last = text.rsplit("\n", 1)[-1]
+        fields = next(csv.reader([last], delimiter=delimiter), [])
+        if len(fields) < len(header):
+            notes.append((int(lines[-1]), "error",
+                          f"the last row has {len(fields)} of {len(header)} fields and the file does "
+                          "not end with a line break: the file looks truncated"))
     return RawTable(name, path, frame, lines, delimiter, notes)
 
 
@@ -581,8 +588,8 @@ def read_tables(
     findings = Findings()
     mappings = {name: match_columns(raw, explicit) for name, raw in raws.items()}
     for raw in raws.values():
-        for note in raw.notes:
-            findings.add(raw.name, None, "", "", "warning", note)
+        for line, severity, problem in raw.notes:
+            findings.add(raw.name, line, "", "", severity, problem)
     frames = {}
     for name, raw in raws.items():
         frames[name] = _typed_role_columns(raw, mappings[name], markers, findings)

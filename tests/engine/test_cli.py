@@ -1,0 +1,181 @@
+"""The command line: exit codes, outputs, and hostile files (never a traceback)."""
+
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from engine.cli import main
+
+from .conftest import GOOD_COLLARS, GOOD_INTERVALS, GOOD_SURVEYS
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+def run(argv, capsys):
+    code = main([str(a) for a in argv])
+    captured = capsys.readouterr()
+    return code, captured.out, captured.err
+
+
+def table_args(paths):
+    return ["--collars", paths["collars"], "--surveys", paths["surveys"], "--intervals", paths["intervals"]]
+
+
+def test_check_clean_tables_exits_0(write_tables, tmp_path, capsys):
+    code, out, err = run(["check", *table_args(write_tables()), "--out", tmp_path / "o"], capsys)
+    assert code == 0, err
+    findings = pd.read_csv(tmp_path / "o" / "findings.csv")
+    assert list(findings.columns) == ["table", "line", "hole", "column", "severity", "problem"]
+    assert len(findings) == 0
+    assert "0 error(s)" in out
+
+
+def test_check_with_errors_exits_1_and_lists_them(write_tables, tmp_path, capsys):
+    intervals = GOOD_INTERVALS + "B,1,3,abc,SCHIST\nQ,0,1,1,SCHIST\n"
+    code, out, _ = run(["check", *table_args(write_tables(intervals=intervals)), "--out", tmp_path], capsys)
+    assert code == 1
+    findings = pd.read_csv(tmp_path / "findings.csv")
+    assert sorted(findings["line"]) == [6, 6, 7]
+    rejected = pd.read_csv(tmp_path / "rejected.csv")
+    assert sorted(rejected["line"]) == [6, 7] and set(rejected["table"]) == {"intervals"}
+    assert "would be left out" in out
+
+
+def test_desurvey_refuses_errors_then_skips_bad_rows(write_tables, tmp_path, capsys):
+    intervals = GOOD_INTERVALS + "B,1,3,abc,SCHIST\n"
+    paths = write_tables(intervals=intervals)
+    code, _, err = run(["desurvey", *table_args(paths), "--out", tmp_path / "a"], capsys)
+    assert code == 1 and "--skip-bad-rows" in err and "line 6" in err
+    assert not (tmp_path / "a" / "samples.csv").exists()
+    code, out, err = run(["desurvey", *table_args(paths), "--out", tmp_path / "b", "--skip-bad-rows"], capsys)
+    assert code == 0, err
+    samples = pd.read_csv(tmp_path / "b" / "samples.csv")
+    rejected = pd.read_csv(tmp_path / "b" / "rejected.csv")
+    assert len(samples) + len(rejected) == 5
+    assert rejected["line"].tolist() == [6] and rejected["table"].tolist() == ["intervals"]
+
+
+def test_desurvey_outputs(write_tables, tmp_path, capsys):
+    code, _, err = run(["desurvey", *table_args(write_tables()), "--out", tmp_path, "--step", "10"], capsys)
+    assert code == 0, err
+    traces = pd.read_csv(tmp_path / "traces.csv")
+    assert list(traces.columns) == ["hole", "depth", "x", "y", "z"]
+    assert traces[traces.hole == "A"]["depth"].tolist() == [0, 10, 20, 25, 30]
+    samples = pd.read_csv(tmp_path / "samples.csv")
+    assert list(samples.columns) == ["hole", "from", "to", "x", "y", "z", "au", "lith"]
+    b = samples[samples.hole == "B"].iloc[0]
+    assert np.allclose([b.x, b.y, b.z], [110, 200, 49])  # vertical hole B, mid-depth 1 m
+    assert not list(tmp_path.glob(".*part"))  # no temporary files left behind
+
+
+@pytest.mark.parametrize("method", ["minimum-curvature", "balanced-tangential", "tangential"])
+def test_desurvey_methods(write_tables, tmp_path, capsys, method):
+    code, _, _ = run(["desurvey", *table_args(write_tables()), "--out", tmp_path, "--method", method], capsys)
+    assert code == 0
+
+
+@pytest.mark.parametrize("command", ["check", "desurvey", "demo"])
+def test_help_of_each_command(command, capsys):
+    with pytest.raises(SystemExit) as info:
+        main([command, "--help"])
+    assert info.value.code == 0
+    assert "--out" in capsys.readouterr().out
+
+
+def test_bad_usage_exits_2(write_tables, tmp_path, capsys):
+    with pytest.raises(SystemExit) as info:
+        main(["check", "--collars", "x.csv"])
+    assert info.value.code == 2
+    code, _, err = run(["check", *table_args(write_tables()), "--column", "colour=red", "--out", tmp_path], capsys)
+    assert code == 2 and "unknown role" in err
+    paths = write_tables()
+    paths["surveys"] = tmp_path / "nope.csv"
+    code, _, err = run(["check", *table_args(paths), "--out", tmp_path], capsys)
+    assert code == 2 and "does not exist" in err
+    blocker = tmp_path / "afile"
+    blocker.write_text("x")
+    code, _, err = run(["check", *table_args(write_tables()), "--out", blocker], capsys)
+    assert code == 2
+
+
+def test_quiet_prints_nothing(write_tables, tmp_path, capsys):
+    code, out, err = run(["check", *table_args(write_tables()), "--out", tmp_path, "--quiet"], capsys)
+    assert code == 0 and out == "" and err == ""
+
+
+# ---- hostile files: exit 0, 1 or 2 with a clear message, never a traceback
+
+rng = np.random.default_rng(0)
+HOSTILE = {
+    "empty": (b"", 1, "empty"),
+    "header only": (b"hole,from,to,au\n", 1, "no rows"),
+    "binary garbage": (bytes(rng.integers(0, 256, 4000, dtype=np.uint8)), 1, "not a text table"),
+    "high bytes": (bytes(rng.integers(128, 256, 4000, dtype=np.uint8)), 1, "intervals"),
+    "truncated row": (b"hole,from,to,au\nA,0,1,0.5\nA,1,2", 1, None),
+    "truncated quote": (b'hole,from,to,au\nA,0,1,0.5\nA,1,2,"0.', 1, None),
+    "unknown delimiter": (b"hole:from:to:au\nA:0:1:0.5\n", 1, "separated"),
+    "duplicate headers": (b"hole,from,to,au,au\nA,0,1,0.5,0.6\n", 1, "appears twice"),
+    "too many fields": (b"hole,from,to,au\nA,0,1,0.5\nA,1,2,0.5,9,9\n", 1, "line 3"),
+    "huge values": (b"hole,from,to,au\nA,0,1,1e308\nA,1,2,1e999\nB,0,1,0.5\n", 1, None),
+    "only blank lines": (b"\n\n\n", 1, "empty"),
+    "utf16": ("hole,from,to,au\nA,0,1,0.5\n".encode("utf-16"), 1, "UTF-16"),
+}
+
+
+@pytest.mark.parametrize("name", list(HOSTILE))
+def test_hostile_interval_files(name, write_tables, tmp_path, capsys):
+    data, expected, words = HOSTILE[name]
+    paths = write_tables(intervals=data)
+    code, out, err = run(["check", *table_args(paths), "--out", tmp_path / "o"], capsys)
+    assert code == expected, (out, err)
+    assert "Traceback" not in err
+    if words:
+        assert words in err + out
+    if code == 1 and "error:" in err:
+        assert "intervals" in err  # the message names the file
+
+
+def test_hostile_collar_values_and_unicode_ids(write_tables, tmp_path, capsys):
+    collars = "hole,x,y,z,depth\n孔-001,1e308,200,50,30\nÜnter Tal,110,200,50,1e308\n"
+    surveys = "hole,depth,azimuth,dip\n孔-001,0,90,-60\nÜnter Tal,0,0,-90\n"
+    intervals = "hole,from,to,au\n孔-001,0,1,0.5\nÜnter Tal,0,2,0.4\n"
+    paths = write_tables(collars, surveys, intervals)
+    code, out, err = run(["check", *table_args(paths), "--out", tmp_path], capsys)
+    assert code == 1 and "Traceback" not in err
+    findings = pd.read_csv(tmp_path / "findings.csv")
+    assert set(findings["hole"]) == {"孔-001", "Ünter Tal"}
+    code, out, err = run(["desurvey", *table_args(paths), "--out", tmp_path / "d", "--skip-bad-rows"], capsys)
+    assert code == 0, err
+
+
+def test_unicode_ids_clean_run(write_tables, tmp_path, capsys):
+    collars = "hole,x,y,z,depth\n孔-001,100,200,50,30\n"
+    surveys = "hole,depth,azimuth,dip\n孔-001,0,90,-60\n"
+    intervals = "hole,from,to,au\n孔-001,0,1,0.5\n"
+    code, out, err = run(["desurvey", *table_args(write_tables(collars, surveys, intervals)), "--out", tmp_path],
+                         capsys)
+    assert code == 0
+    assert pd.read_csv(tmp_path / "samples.csv")["hole"].tolist() == ["孔-001"]
+
+
+def test_console_script_in_a_subprocess_never_shows_a_traceback(write_tables, tmp_path):
+    paths = write_tables(intervals=b"\x00\x01garbage")
+    env = dict(os.environ, PYTHONIOENCODING="ascii")  # a console that cannot print the ids
+    result = subprocess.run([sys.executable, "-m", "engine", "check", *map(str, table_args(paths)), "--out",
+                             str(tmp_path)], capture_output=True, text=True, env=env, cwd=ROOT)
+    assert result.returncode == 1
+    assert "Traceback" not in result.stderr and "not a text table" in result.stderr
+
+
+def test_demo_runs(tmp_path, capsys):
+    code, out, err = run(["demo", "--out", tmp_path, "--seed", "3"], capsys)
+    assert code == 0, err
+    for name in ("data/collars.csv", "data/surveys.csv", "data/intervals.csv", "data/truth.json",
+                 "findings.csv", "traces.csv", "samples.csv"):
+        assert (tmp_path / name).exists(), name
+    assert "0 error(s)" in out and "major axis trend" in out
