@@ -249,3 +249,18 @@ def test_kernel_body_runs_with_jit_disabled():
                             cwd=os.path.dirname(os.path.dirname(os.path.dirname(__file__))))
     assert result.returncode == 0, result.stderr
     assert result.stdout.split() == ["27.22", "19.45", "94.01", "True"]
+
+
+def test_many_unordered_queries_equal_ordered_ones():
+    # above 100,000 queries in no hole order the engine groups them by hole first
+    rng = np.random.default_rng(21)
+    collars, surveys = curving_program(rng, 40)
+    trace = Desurvey().fit(collars, surveys)
+    hole = rng.integers(-1, 41, 150_000)  # includes unknown holes -1 and 40
+    depth = rng.uniform(-5, 330, 150_000)
+    got = trace.positions(hole, depth)
+    small = np.concatenate([trace.positions(hole[i:i + 50_000], depth[i:i + 50_000])
+                            for i in range(0, 150_000, 50_000)])
+    assert np.array_equal(np.isnan(got), np.isnan(small))
+    assert np.allclose(got, small, equal_nan=True, atol=0, rtol=0)
+    assert np.isnan(got[(hole < 0) | (hole >= 40)]).all()
