@@ -28,6 +28,7 @@ import pandas as pd
 
 from ._jit import jit, jit_parallel
 from .errors import SurveyError, UsageError
+from .tables import hole_codes
 
 import numba
 
@@ -234,25 +235,6 @@ def _order_by_hole(hole, n_holes):
 # --------------------------------------------------------------------------------------------
 # public API
 # --------------------------------------------------------------------------------------------
-
-
-def hole_codes(values, hole_ids) -> np.ndarray:
-    """Index of each of ``values`` in ``hole_ids`` (-1 where absent), compared as text."""
-    import pyarrow as pa
-    import pyarrow.compute as pc
-
-    def text(v):
-        if isinstance(v, (pd.Series, pd.Index)):
-            if hasattr(v.array, "__arrow_array__"):
-                return pc.cast(pa.array(v.array), pa.string())
-            v = v.to_numpy()
-        v = np.asarray(v)
-        if v.dtype != object:
-            v = v.astype(str)
-        return pc.cast(pa.array(v, type=pa.string(), from_pandas=True), pa.string())
-
-    codes = pc.index_in(text(values), value_set=text(hole_ids))
-    return codes.fill_null(-1).to_numpy(zero_copy_only=False).astype(np.int64)
 
 
 def station_positions(start, depth_m, directions, collar_xyz, method: str = "minimum-curvature"):

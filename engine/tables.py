@@ -146,7 +146,7 @@ class RawTable:
 
 
 def _sniff_delimiter(text: str, path: str) -> str:
-    sample_lines = [line for line in text.splitlines()[:50] if line.strip()]
+    sample_lines = [line for line in text[:65536].splitlines()[:50] if line.strip()]
     sample = "\n".join(sample_lines)
     try:
         return csv.Sniffer().sniff(sample, delimiters=",;\t|").delimiter
@@ -181,26 +181,52 @@ def _decode(data: bytes, path: str) -> tuple[str, list[str]]:
     return text, notes
 
 
-def _record_lines(text: str, delimiter: str, n_rows: int) -> np.ndarray:
-    """Line number (header = 1) at which each data record starts, blank lines included."""
-    physical = text.count("\n") + (0 if text.endswith("\n") else 1)
-    if physical == n_rows + 1:
-        return np.arange(2, n_rows + 2, dtype=np.int64)
+def _record_lines(data: bytes, text: str, delimiter: str, n_rows: int) -> np.ndarray:
+    """Line number (header = 1) at which each data record starts; blank lines are skipped as
+    pandas skips them (empty or white space only)."""
+    raw = np.frombuffer(data, dtype=np.uint8)
+    newline = 10 if (raw == 10).any() else 13
+    ends = np.flatnonzero(raw == newline)
+    starts = np.r_[0, ends + 1]
+    ends = np.r_[ends, len(raw)]
+    keep = starts < len(raw)
+    starts, ends = starts[keep], ends[keep]
+    filled = ends > starts
+    # a line that starts with white space may be blank: look at those few one by one
+    space = np.zeros(256, dtype=bool)
+    space[[9, 10, 13, 32]] = True
+    maybe = np.flatnonzero(filled & space[raw[np.minimum(starts, len(raw) - 1)]])
+    for k in maybe:
+        filled[k] = bool(data[starts[k]:ends[k]].strip())
+    physical = np.flatnonzero(filled) + 1  # 1-based numbers of non-blank lines
+    if len(physical) == n_rows + 1:
+        return physical[1:].astype(np.int64)
     # Quoted fields hold line breaks: let the csv module count physical lines.
     reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter)
-    starts = []
+    found = []
     previous_end = 0
-    for _ in reader:
-        starts.append(previous_end + 1)
+    for record in reader:
+        if record and "".join(record).strip() != "" or len(record) > 1:
+            found.append(previous_end + 1)
         previous_end = reader.line_num
-    starts = np.asarray(starts[1:], dtype=np.int64)  # drop the header record
-    if len(starts) != n_rows:  # pandas and csv disagree: fall back to counting records
+    found = np.asarray(found[1:], dtype=np.int64)  # drop the header record
+    if len(found) != n_rows:  # pandas and csv disagree: fall back to counting records
         return np.arange(2, n_rows + 2, dtype=np.int64)
-    return starts
+    return found
 
 
-def read_raw_table(path, name: str) -> RawTable:
-    """Read one table file as found; raise :class:`TableError` with a clear message when it cannot."""
+#: Every spelling of the missing markers that the CSV parser treats as missing in numeric columns
+#: (case variants); other spellings and markers given by the user are caught cell by cell.
+_PARSER_MISSING = sorted({v for m in MISSING_MARKERS for v in (m, m.upper(), m.capitalize())})
+
+
+def read_raw_table(path, name: str, text_columns=frozenset()) -> RawTable:
+    """Read one table file as found; raise :class:`TableError` with a clear message when it cannot.
+
+    Columns whose normalised name is in ``text_columns`` are kept as text exactly as written (hole
+    ids such as ``007``); the others are parsed as numbers where every cell is one, and kept as text
+    otherwise (to be parsed cell by cell).
+    """
     path = str(path)
     p = Path(path)
     if not p.exists():
@@ -225,14 +251,17 @@ def read_raw_table(path, name: str) -> RawTable:
                 "Rename one of them."
             )
         seen.setdefault(h, i)
+    as_text = {h: object for h in header if normalise_name(h) in text_columns}
     try:
         frame = pd.read_csv(
             io.StringIO(text),
             sep=delimiter,
-            dtype=str,
+            dtype=as_text,
             keep_default_na=False,
-            skip_blank_lines=False,
+            na_values={h: _PARSER_MISSING for h in header if h not in as_text},
+            skip_blank_lines=True,
             engine="c",
+            low_memory=False,
         )
     except pd.errors.ParserError as exc:
         message = str(exc)
@@ -247,20 +276,29 @@ def read_raw_table(path, name: str) -> RawTable:
     except (pd.errors.EmptyDataError, UnicodeError, ValueError) as exc:
         raise TableError(f"{path}: cannot be read as a table ({exc}).") from None
     frame.columns = [str(c).strip() for c in frame.columns]
-    lines = _record_lines(text, delimiter, len(frame))
+    lines = _record_lines(data, text, delimiter, len(frame))
     # Unnamed columns: drop when empty (a trailing delimiter), else give them a plain name.
     keep = []
     for i, column in enumerate(frame.columns):
         if column == "" or column.startswith("Unnamed:"):
-            if (frame[column].str.strip() == "").all():
+            if _empty_cells(frame[column]).all():
                 continue
             frame = frame.rename(columns={column: f"column_{i + 1}"})
             keep.append(f"column_{i + 1}")
         else:
             keep.append(column)
     frame = frame[keep]
-    if len(frame.columns):
-        blank = (frame.apply(lambda s: s.str.strip()) == "").all(axis=1).to_numpy()
+    if len(frame.columns):  # rows of delimiters only are blank too
+        blank = np.ones(len(frame), dtype=bool)
+        numeric = [c for c in frame.columns if pd.api.types.is_numeric_dtype(frame[c].dtype)]
+        for column in numeric:
+            blank &= frame[column].isna().to_numpy()
+        rows = np.flatnonzero(blank)
+        for column in frame.columns:
+            if column not in numeric and len(rows):
+                rows = rows[_empty_cells(frame[column].iloc[rows])]
+        blank[:] = False
+        blank[rows] = True
         if blank.any():
             frame = frame.loc[~blank].reset_index(drop=True)
             lines = lines[~blank]
@@ -274,6 +312,12 @@ def read_raw_table(path, name: str) -> RawTable:
                           f"the last row has {len(fields)} of {len(header)} fields and the file does "
                           "not end with a line break: the file looks truncated"))
     return RawTable(name, path, frame, lines, delimiter, notes)
+
+
+def _empty_cells(series: pd.Series) -> np.ndarray:
+    if pd.api.types.is_numeric_dtype(series.dtype):
+        return series.isna().to_numpy()
+    return (series.isna() | (series.astype(str).str.strip() == "")).to_numpy()
 
 
 def _read_parquet(p: Path, name: str) -> RawTable:
@@ -404,10 +448,14 @@ def parse_numbers(
         idx = np.flatnonzero(unparsed)
         cells = text.iloc[idx]
         if detection:
-            below = cells.str.extract(_BELOW_RE, expand=False)
-            above = cells.str.extract(_ABOVE_RE, expand=False)
-            limit_b = pd.to_numeric(below, errors="coerce").to_numpy(dtype=np.float64)
-            limit_a = pd.to_numeric(above, errors="coerce").to_numpy(dtype=np.float64)
+            limit_b = np.full(len(idx), np.nan)
+            limit_a = np.full(len(idx), np.nan)
+            first = cells.str[:1].to_numpy(dtype=object)
+            for limit, mark, pattern in ((limit_b, "<", _BELOW_RE), (limit_a, ">", _ABOVE_RE)):
+                marked = first == mark
+                if marked.any():
+                    found = cells[marked].str.extract(pattern, expand=False)
+                    limit[marked] = pd.to_numeric(found, errors="coerce").to_numpy(dtype=np.float64)
             is_b = ~np.isnan(limit_b)
             is_a = ~np.isnan(limit_a)
             factor = {"half": 0.5, "limit": 1.0, "zero": 0.0, "missing": np.nan}[below_detection]
@@ -570,8 +618,12 @@ def read_tables(
             f"below-detection rule {below_detection!r}: use one of {', '.join(BELOW_DETECTION_RULES)}."
         )
     explicit = dict(columns or {})
-    raws = {name: read_raw_table(path, name) for name, path in
-            zip(TABLE_NAMES, (collars, surveys, intervals))}
+    text_columns = set(ROLE_SYNONYMS["hole"])
+    if "hole" in explicit:
+        text_columns.add(normalise_name(explicit["hole"]))
+    forced = {normalise_name(c) for c in category_columns}
+    raws = {name: read_raw_table(path, name, frozenset(text_columns | (forced if name == "intervals" else set())))
+            for name, path in zip(TABLE_NAMES, (collars, surveys, intervals))}
     for role, name in explicit.items():
         if not any(
             normalise_name(name) in {normalise_name(c) for c in raw.frame.columns}
@@ -605,11 +657,63 @@ def read_tables(
     )
 
 
+def hole_codes(values, hole_ids) -> np.ndarray:
+    """Index of each of ``values`` in ``hole_ids`` (-1 where absent), compared as text."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    def text(v):
+        if isinstance(v, (pd.Series, pd.Index)):
+            if hasattr(v.array, "__arrow_array__"):
+                return pc.cast(pa.array(v.array), pa.string())
+            v = v.to_numpy()
+        v = np.asarray(v)
+        if v.dtype != object:
+            v = v.astype(str)
+        return pc.cast(pa.array(v, type=pa.string(), from_pandas=True), pa.string())
+
+    codes = pc.index_in(text(values), value_set=text(hole_ids))
+    return codes.fill_null(-1).to_numpy(zero_copy_only=False).astype(np.int64)
+
+
+class _View:
+    """One typed table with its columns fetched once as numpy arrays."""
+
+    def __init__(self, name: str, frame: pd.DataFrame, findings: Findings):
+        self.name = name
+        self.frame = frame
+        self.findings = findings
+        self.lines = frame["_line"].to_numpy()
+        self.holes = frame["hole"].to_numpy(dtype=object)
+        self.named = self.holes != ""
+        self.code = np.full(len(frame), -1, dtype=np.int64)
+
+    def values(self, role):
+        return self.frame[role].to_numpy(dtype=np.float64)
+
+    def status(self, role):
+        return self.frame[f"_status_{role}"].to_numpy()
+
+    def add(self, mask, column, severity, problems):
+        """One finding per row where ``mask``; ``problems`` is a sentence, or a function of the row
+        positions returning one sentence per row."""
+        if not mask.any():
+            return
+        rows = np.flatnonzero(mask)
+        text = problems if isinstance(problems, str) else problems(rows)
+        self.findings.add_rows(self.name, self.lines[rows], self.holes[rows], column, severity, text)
+
+    def missing(self, role, column, what):
+        """Flag missing cells of a parsed role column; return the mask of usable (OK) cells."""
+        status = self.status(role)
+        self.add(status == MISSING, column, "error", what)
+        return status == OK
+
+
 def _typed_role_columns(raw: RawTable, mapping: dict, markers, findings: Findings) -> pd.DataFrame:
     frame = pd.DataFrame({"_line": raw.lines})
-    hole = _as_text(raw.frame[mapping["hole"]])
-    frame["hole"] = hole.to_numpy(dtype=object)
-    holes = frame["hole"].to_numpy()
+    holes = _as_text(raw.frame[mapping["hole"]]).to_numpy(dtype=object)
+    frame["hole"] = holes
     for role, column in mapping.items():
         if role == "hole":
             continue
@@ -626,16 +730,29 @@ def _typed_role_columns(raw: RawTable, mapping: dict, markers, findings: Finding
         bad = status == NOT_FINITE
         findings.add_rows(raw.name, raw.lines[bad], holes[bad], column, "error",
                           f"{column} is not a finite number")
-    empty = frame["hole"] == ""
+    empty = holes == ""
     findings.add_rows(raw.name, raw.lines[empty], holes[empty], mapping["hole"], "error",
                       "the hole id is empty; every row needs the id of its hole")
     return frame
 
 
+def _clearly_text(series: pd.Series, markers, sample: int = 2000) -> bool:
+    """True when fewer than half of a sample of the column's filled cells read as numbers (then the
+    column is a category and is not parsed cell by cell)."""
+    if pd.api.types.is_numeric_dtype(series.dtype) or len(series) <= sample:
+        return False
+    cells = _as_text(series.iloc[np.linspace(0, len(series) - 1, sample).astype(np.int64)])
+    cells = cells[~cells.str.lower().isin(markers)]
+    if len(cells) == 0:
+        return False
+    cells = cells.str.lstrip("<>").str.replace(",", ".", regex=False).str.strip()
+    return pd.to_numeric(cells, errors="coerce").notna().mean() < 0.5
+
+
 def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_detection,
                            forced_categories, findings):
     role_columns = set(mapping.values())
-    holes = frame["hole"].to_numpy()
+    holes = frame["hole"].to_numpy(dtype=object)
     lines = raw.lines
     value_columns, category_columns = [], []
     reserved = {"hole", "from", "to", "_line"}
@@ -655,6 +772,10 @@ def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_de
             frame[column] = _as_text(series).to_numpy(dtype=object)
             category_columns.append(column)
             continue
+        if _clearly_text(series, markers):
+            frame[column] = _as_text(series).to_numpy(dtype=object)
+            category_columns.append(column)
+            continue
         values, status = parse_numbers(series, detection=True, below_detection=below_detection,
                                        missing_markers=markers, decimal_comma=decimal_comma)
         present = status != MISSING
@@ -671,7 +792,6 @@ def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_de
         frame[column] = values
         if not present.any():
             findings.add("intervals", None, "", column, "warning", f"column {column!r} holds no values")
-        cells = None
         for code, severity, sentence in (
             (TEXT, "error", "{cell} is not a number in value column {col}; fix it, or name the "
                             "marker with --missing-marker if it means not sampled"),
@@ -702,179 +822,158 @@ def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_de
     return value_columns, category_columns
 
 
-def _missing(table, frame, role, column_name, findings, what):
-    status = frame[f"_status_{role}"].to_numpy()
-    bad = status == MISSING
-    findings.add_rows(table, frame["_line"].to_numpy()[bad], frame["hole"].to_numpy()[bad],
-                      column_name, "error", what)
-    return status == OK
-
-
 def _validate(frames, value_columns, dip_convention, findings: Findings, paths):
-    collars, surveys, intervals = frames["collars"], frames["surveys"], frames["intervals"]
-    c_line, c_hole = collars["_line"].to_numpy(), collars["hole"].to_numpy()
+    collars = _View("collars", frames["collars"], findings)
+    surveys = _View("surveys", frames["surveys"], findings)
+    intervals = _View("intervals", frames["intervals"], findings)
 
     # ---- collars
-    known = collars["hole"] != ""
-    dup = (collars["hole"].duplicated(keep=False) & known).to_numpy()
+    first = pd.Series(collars.holes).duplicated(keep="first").to_numpy()
+    ids = collars.holes[collars.named & ~first]  # each named hole once, in file order
+    collars.code = hole_codes(collars.holes, ids)
+    collars.code[~collars.named] = -1
+    dup = collars.named & pd.Series(collars.holes).duplicated(keep=False).to_numpy()
     if dup.any():
-        groups = collars[dup].groupby("hole")["_line"].apply(lambda s: ", ".join(map(str, s)))
-        findings.add_rows(
-            "collars", c_line[dup], c_hole[dup], "hole", "error",
-            [f"hole id {h!r} is used by more than one collar row (lines {groups[h]}); hole ids "
-             "must be unique" for h in c_hole[dup]],
-        )
+        where = pd.Series(collars.lines[dup]).groupby(collars.holes[dup]).agg(lambda s: ", ".join(map(str, s)))
+        collars.add(dup, "hole", "error", lambda rows: [
+            f"hole id {h!r} is used by more than one collar row (lines {where[h]}); hole ids must be unique"
+            for h in collars.holes[rows]])
     for role in ("x", "y", "z"):
-        ok = _missing("collars", collars, role, role, findings,
-                      f"the collar has no {role} coordinate")
-        values = collars[role].to_numpy()
-        huge = ok & (np.abs(values) > COORDINATE_LIMIT_M)
-        findings.add_rows("collars", c_line[huge], c_hole[huge], role, "error",
-                          [f"{role} = {v:g} is not a plausible coordinate in metres" for v in values[huge]])
-    ok = _missing("collars", collars, "depth", "depth", findings,
-                  "the collar has no end-of-hole depth")
-    depth = collars["depth"].to_numpy()
-    bad = ok & (depth <= 0)
-    findings.add_rows("collars", c_line[bad], c_hole[bad], "depth", "error",
-                      [f"end-of-hole depth {v:g} must be above zero" for v in depth[bad]])
-    bad = ok & (depth > DEPTH_LIMIT_M)
-    findings.add_rows("collars", c_line[bad], c_hole[bad], "depth", "error",
-                      [f"end-of-hole depth {v:g} m is not plausible" for v in depth[bad]])
+        ok = collars.missing(role, role, f"the collar has no {role} coordinate")
+        values = collars.values(role)
+        collars.add(ok & (np.abs(values) > COORDINATE_LIMIT_M), role, "error", lambda rows: [
+            f"{role} = {v:g} is not a plausible coordinate in metres" for v in values[rows]])
+    ok = collars.missing("depth", "depth", "the collar has no end-of-hole depth")
+    depth = collars.values("depth")
+    collars.add(ok & (depth <= 0), "depth", "error",
+                lambda rows: [f"end-of-hole depth {v:g} must be above zero" for v in depth[rows]])
+    collars.add(ok & (depth > DEPTH_LIMIT_M), "depth", "error",
+                lambda rows: [f"end-of-hole depth {v:g} m is not plausible" for v in depth[rows]])
     for role in ("azimuth", "dip"):
-        if role in collars:
-            _angle_ranges("collars", collars, role, findings)
-
-    end_depth = dict(zip(collars["hole"], collars["depth"]))
-    collar_holes = set(collars["hole"][known])
+        if role in collars.frame:
+            _angle_ranges(collars, role)
+    # end depth of each hole id (first collar row of the id)
+    end_depth = np.full(len(ids), np.nan)
+    end_depth[collars.code[collars.code >= 0][::-1]] = depth[collars.code >= 0][::-1]
 
     # ---- surveys
-    s_line, s_hole = surveys["_line"].to_numpy(), surveys["hole"].to_numpy()
-    unknown = ((surveys["hole"] != "") & ~surveys["hole"].isin(collar_holes)).to_numpy()
-    findings.add_rows("surveys", s_line[unknown], s_hole[unknown], "hole", "error",
-                      [f"hole {h!r} has no collar row" for h in s_hole[unknown]])
-    ok_at = _missing("surveys", surveys, "at", "depth", findings, "the survey row has no depth")
-    at = surveys["at"].to_numpy()
-    bad = ok_at & (at < 0)
-    findings.add_rows("surveys", s_line[bad], s_hole[bad], "depth", "error",
-                      [f"survey depth {v:g} is negative" for v in at[bad]])
-    eoh = surveys["hole"].map(end_depth).to_numpy(dtype=np.float64)
-    past = ok_at & (at > eoh + DEPTH_TOLERANCE_M)
-    findings.add_rows("surveys", s_line[past], s_hole[past], "depth", "warning",
-                      [f"survey at {a:g} m is past the end of the hole ({e:g} m)"
-                       for a, e in zip(at[past], eoh[past])])
-    ok_az = _missing("surveys", surveys, "azimuth", "azimuth", findings, "the survey row has no azimuth")
-    ok_dip = _missing("surveys", surveys, "dip", "dip", findings, "the survey row has no dip")
-    ok_az &= _angle_ranges("surveys", surveys, "azimuth", findings)
-    ok_dip &= _angle_ranges("surveys", surveys, "dip", findings)
-    usable = (ok_at & (at >= 0) & (surveys["hole"] != "")).to_numpy()
-    key = surveys.loc[usable, ["hole", "at"]]
-    dup = np.zeros(len(surveys), dtype=bool)
-    dup[np.flatnonzero(usable)] = key.duplicated(keep=False).to_numpy()
+    surveys.code = hole_codes(surveys.holes, ids)
+    surveys.add(surveys.named & (surveys.code < 0), "hole", "error",
+                lambda rows: [f"hole {h!r} has no collar row" for h in surveys.holes[rows]])
+    ok_at = surveys.missing("at", "depth", "the survey row has no depth")
+    at = surveys.values("at")
+    surveys.add(ok_at & (at < 0), "depth", "error",
+                lambda rows: [f"survey depth {v:g} is negative" for v in at[rows]])
+    eoh = np.where(surveys.code >= 0, end_depth[np.maximum(surveys.code, 0)], np.nan)
+    surveys.add(ok_at & (at > eoh + DEPTH_TOLERANCE_M), "depth", "warning", lambda rows: [
+        f"survey at {a:g} m is past the end of the hole ({e:g} m)" for a, e in zip(at[rows], eoh[rows])])
+    ok_az = surveys.missing("azimuth", "azimuth", "the survey row has no azimuth")
+    ok_dip = surveys.missing("dip", "dip", "the survey row has no dip")
+    ok_az &= _angle_ranges(surveys, "azimuth")
+    ok_dip &= _angle_ranges(surveys, "dip")
+    usable = ok_at & (at >= 0) & (surveys.code >= 0)
+    rows = np.flatnonzero(usable)
+    order = rows[np.lexsort((at[rows], surveys.code[rows]))]
+    same = (surveys.code[order][1:] == surveys.code[order][:-1]) & (at[order][1:] == at[order][:-1])
+    dup = np.zeros(len(at), dtype=bool)
+    dup[order[1:][same]] = True
+    dup[order[:-1][same]] = True
     if dup.any():
-        groups = surveys[dup].groupby(["hole", "at"])["_line"].apply(lambda s: ", ".join(map(str, s)))
-        findings.add_rows(
-            "surveys", s_line[dup], s_hole[dup], "depth", "error",
-            [f"more than one survey row at depth {a:g} (lines {groups[(h, a)]}); keep one"
-             for h, a in zip(s_hole[dup], at[dup])],
-        )
-    _dogleg_warnings(surveys, ok_at & ok_az & ok_dip & ~dup, dip_convention, findings)
-    surveyed = set(surveys["hole"])
-    no_survey = (known & ~collars["hole"].isin(surveyed)).to_numpy()
+        where: dict = {}
+        for r in np.flatnonzero(dup):
+            where.setdefault((surveys.code[r], at[r]), []).append(str(surveys.lines[r]))
+        surveys.add(dup, "depth", "error", lambda rows: [
+            f"more than one survey row at depth {at[r]:g} (lines {', '.join(where[(surveys.code[r], at[r])])}); "
+            "keep one" for r in rows])
+    good = usable & ok_az & ok_dip & ~dup
+    _dogleg_warnings(surveys, order[good[order]], dip_convention)
+    n_ids = len(ids)
+    surveyed = np.bincount(surveys.code[surveys.code >= 0], minlength=n_ids) > 0
+    no_survey = (collars.code >= 0) & ~surveyed[np.maximum(collars.code, 0)]
     if no_survey.any():
-        has_angles = np.zeros(len(collars), dtype=bool)
-        if "azimuth" in collars and "dip" in collars:
-            has_angles = (collars["_status_azimuth"].to_numpy() == OK) & (
-                collars["_status_dip"].to_numpy() == OK)
-        findings.add_rows(
-            "collars", c_line[no_survey], c_hole[no_survey], "hole", "warning",
-            ["the hole has no survey rows; its collar azimuth and dip are used" if a else
-             "the hole has no survey rows and no collar azimuth and dip; it is taken as vertical"
-             for a in has_angles[no_survey]],
-        )
+        has_angles = np.zeros(len(collars.lines), dtype=bool)
+        if "azimuth" in collars.frame and "dip" in collars.frame:
+            has_angles = (collars.status("azimuth") == OK) & (collars.status("dip") == OK)
+        collars.add(no_survey, "hole", "warning", lambda rows: [
+            "the hole has no survey rows; its collar azimuth and dip are used" if a else
+            "the hole has no survey rows and no collar azimuth and dip; it is taken as vertical"
+            for a in has_angles[rows]])
 
     # ---- intervals
-    i_line, i_hole = intervals["_line"].to_numpy(), intervals["hole"].to_numpy()
-    unknown = ((intervals["hole"] != "") & ~intervals["hole"].isin(collar_holes)).to_numpy()
-    findings.add_rows("intervals", i_line[unknown], i_hole[unknown], "hole", "error",
-                      [f"hole {h!r} has no collar row" for h in i_hole[unknown]])
-    ok_from = _missing("intervals", intervals, "from", "from", findings, "the interval has no from depth")
-    ok_to = _missing("intervals", intervals, "to", "to", findings, "the interval has no to depth")
-    d_from, d_to = intervals["from"].to_numpy(), intervals["to"].to_numpy()
-    bad = ok_from & (d_from < 0)
-    findings.add_rows("intervals", i_line[bad], i_hole[bad], "from", "error",
-                      [f"from depth {v:g} is negative" for v in d_from[bad]])
+    intervals.code = hole_codes(intervals.holes, ids)
+    intervals.add(intervals.named & (intervals.code < 0), "hole", "error",
+                  lambda rows: [f"hole {h!r} has no collar row" for h in intervals.holes[rows]])
+    ok_from = intervals.missing("from", "from", "the interval has no from depth")
+    ok_to = intervals.missing("to", "to", "the interval has no to depth")
+    d_from, d_to = intervals.values("from"), intervals.values("to")
+    intervals.add(ok_from & (d_from < 0), "from", "error",
+                  lambda rows: [f"from depth {v:g} is negative" for v in d_from[rows]])
     both = ok_from & ok_to
-    bad = both & (d_from >= d_to)
-    findings.add_rows("intervals", i_line[bad], i_hole[bad], "to", "error",
-                      [f"from {a:g} is not above to {b:g}; an interval needs from < to"
-                       for a, b in zip(d_from[bad], d_to[bad])])
-    eoh = intervals["hole"].map(end_depth).to_numpy(dtype=np.float64)
-    past = ok_to & (d_to > eoh + DEPTH_TOLERANCE_M)
-    findings.add_rows("intervals", i_line[past], i_hole[past], "to", "error",
-                      [f"to {b:g} m is past the end of the hole ({e:g} m)"
-                       for b, e in zip(d_to[past], eoh[past])])
-    good = both & (d_from < d_to) & (d_from >= 0) & (intervals["hole"] != "").to_numpy()
-    _overlap_errors(intervals, good, findings)
-
-    with_intervals = set(intervals["hole"])
-    no_data = (known & ~collars["hole"].isin(with_intervals)).to_numpy()
-    findings.add_rows("collars", c_line[no_data], c_hole[no_data], "hole", "warning",
-                      "the hole has no interval rows")
+    intervals.add(both & (d_from >= d_to), "to", "error", lambda rows: [
+        f"from {a:g} is not above to {b:g}; an interval needs from < to" for a, b in zip(d_from[rows], d_to[rows])])
+    eoh = np.where(intervals.code >= 0, end_depth[np.maximum(intervals.code, 0)], np.nan)
+    intervals.add(ok_to & (d_to > eoh + DEPTH_TOLERANCE_M), "to", "error", lambda rows: [
+        f"to {b:g} m is past the end of the hole ({e:g} m)" for b, e in zip(d_to[rows], eoh[rows])])
+    good = both & (d_from < d_to) & (d_from >= 0) & (intervals.code >= 0)
+    _overlap_errors(intervals, good, d_from, d_to)
+    sampled = np.bincount(intervals.code[intervals.code >= 0], minlength=n_ids) > 0
+    collars.add((collars.code >= 0) & ~sampled[np.maximum(collars.code, 0)], "hole", "warning",
+                "the hole has no interval rows")
 
 
-def _angle_ranges(table, frame, role, findings) -> np.ndarray:
-    values = frame[role].to_numpy()
-    status = frame[f"_status_{role}"].to_numpy()
+def _angle_ranges(view: _View, role) -> np.ndarray:
+    values = view.values(role)
+    status = view.status(role)
     if role == "azimuth":
         bad = (status == OK) & ((values < 0) | (values >= 360))
         sentence = "azimuth {v:g} is outside [0, 360); write it as a bearing from 0 to below 360"
     else:
         bad = (status == OK) & ((values < -90) | (values > 90))
         sentence = "dip {v:g} is outside [-90, 90]; dip is measured from horizontal"
-    findings.add_rows(table, frame["_line"].to_numpy()[bad], frame["hole"].to_numpy()[bad], role,
-                      "error", [sentence.format(v=v) for v in values[bad]])
+    view.add(bad, role, "error", lambda rows: [sentence.format(v=v) for v in values[rows]])
     return ~bad
 
 
-def _dogleg_warnings(surveys, ok, dip_convention, findings):
+def _dogleg_warnings(surveys: _View, order, dip_convention):
+    """Warn about sharp bends between consecutive good stations (``order``: rows sorted by hole, depth)."""
     from .desurvey import direction_vectors  # local: desurvey imports numba
 
-    part = surveys.loc[ok, ["hole", "at", "azimuth", "dip", "_line"]].sort_values(["hole", "at"], kind="stable")
-    if len(part) < 2:
+    if len(order) < 2:
         return
-    t = direction_vectors(part["azimuth"].to_numpy(), part["dip"].to_numpy(), dip_convention)
-    same = part["hole"].to_numpy()[1:] == part["hole"].to_numpy()[:-1]
+    at = surveys.values("at")[order]
+    t = direction_vectors(surveys.values("azimuth")[order], surveys.values("dip")[order], dip_convention)
+    code = surveys.code[order]
+    same = code[1:] == code[:-1]
     cosang = np.clip(np.einsum("ij,ij->i", t[1:], t[:-1]), -1.0, 1.0)
     dogleg = np.degrees(np.arccos(cosang))
-    span = np.diff(part["at"].to_numpy())
     with np.errstate(divide="ignore", invalid="ignore"):
-        severity = dogleg * 30.0 / span
+        severity = dogleg * 30.0 / np.diff(at)
     bad = same & (dogleg >= DOGLEG_MIN_DEG) & (severity > DOGLEG_SEVERITY_DEG_PER_30M)
-    if bad.any():
-        lines = part["_line"].to_numpy()
-        prev = lines[:-1][bad]
-        findings.add_rows(
-            "surveys", lines[1:][bad], part["hole"].to_numpy()[1:][bad], "azimuth", "warning",
-            [f"the hole bends {d:.1f} degrees from the station at line {p} ({s:.1f} degrees per 30 m); "
-             "check both rows for a mistyped angle" for d, p, s in zip(dogleg[bad], prev, severity[bad])],
-        )
+    mask = np.zeros(len(surveys.lines), dtype=bool)
+    mask[order[1:][bad]] = True
+    previous = dict(zip(order[1:][bad], surveys.lines[order[:-1][bad]]))
+    bend = dict(zip(order[1:][bad], zip(dogleg[bad], severity[bad])))
+    surveys.add(mask, "azimuth", "warning", lambda rows: [
+        f"the hole bends {bend[r][0]:.1f} degrees from the station at line {previous[r]} "
+        f"({bend[r][1]:.1f} degrees per 30 m); check both rows for a mistyped angle" for r in rows])
 
 
-def _overlap_errors(intervals, good, findings):
-    part = intervals.loc[good, ["hole", "from", "to", "_line"]].sort_values(["hole", "from", "to"], kind="stable")
-    if len(part) < 2:
+def _overlap_errors(intervals: _View, good, d_from, d_to):
+    rows = np.flatnonzero(good)
+    if len(rows) < 2:
         return
-    holes = part["hole"].to_numpy()
-    d_from, d_to = part["from"].to_numpy(), part["to"].to_numpy()
-    lines = part["_line"].to_numpy()
+    order = rows[np.lexsort((d_to[rows], d_from[rows], intervals.code[rows]))]
+    code = intervals.code[order]
+    lines = intervals.lines[order]
+    new_hole = np.r_[True, code[1:] != code[:-1]]
     # furthest 'to' reached so far in the hole, and the line that reached it
-    new_hole = np.r_[True, holes[1:] != holes[:-1]]
-    reach, reach_line = segmented_running_max(new_hole, d_to, lines)
+    reach, reach_line = segmented_running_max(new_hole, d_to[order], lines)
     prior = np.r_[np.nan, reach[:-1]]
     prior_line = np.r_[0, reach_line[:-1]]
-    bad = ~new_hole & (d_from < prior - DEPTH_TOLERANCE_M)
-    findings.add_rows(
-        "intervals", lines[bad], holes[bad], "from", "error",
-        [f"interval {a:g}-{b:g} overlaps the interval at line {p}, which reaches {r:g}"
-         for a, b, p, r in zip(d_from[bad], d_to[bad], prior_line[bad], prior[bad])],
-    )
+    bad = ~new_hole & (d_from[order] < prior - DEPTH_TOLERANCE_M)
+    mask = np.zeros(len(intervals.lines), dtype=bool)
+    mask[order[bad]] = True
+    info = dict(zip(order[bad], zip(prior_line[bad], prior[bad])))
+    intervals.add(mask, "from", "error", lambda rows: [
+        f"interval {d_from[r]:g}-{d_to[r]:g} overlaps the interval at line {info[r][0]}, which reaches "
+        f"{info[r][1]:g}" for r in rows])
