@@ -43,9 +43,13 @@ class Console:
         if not self.bar_allowed:
             yield lambda name: None
             return
+        import shutil
+
         from tqdm import tqdm
 
+        size = shutil.get_terminal_size(fallback=(80, 24))  # a terminal reporting 0 x 0 gets 80 x 24
         with tqdm(total=len(names), file=sys.stderr, leave=False, unit="step",
+                  ncols=min(size.columns or 80, 100), nrows=size.lines or 24,
                   bar_format="{desc:<28}{bar}| {n_fmt}/{total_fmt} [{elapsed}]") as bar:
             state = {"started": False}
 

@@ -179,3 +179,29 @@ def test_demo_runs(tmp_path, capsys):
                  "findings.csv", "traces.csv", "samples.csv"):
         assert (tmp_path / name).exists(), name
     assert "0 error(s)" in out and "major axis trend" in out
+
+
+def test_progress_bar_on_a_terminal_only(write_tables, tmp_path):
+    # a pseudo-terminal on stderr shows the stage bar; a pipe shows none
+    import pty  # POSIX only, as is CI
+
+    paths = write_tables()
+    argv = [sys.executable, "-m", "engine", "desurvey", *map(str, table_args(paths)), "--out", str(tmp_path)]
+    master, slave = pty.openpty()
+    process = subprocess.Popen(argv, stdout=subprocess.DEVNULL, stderr=slave, cwd=ROOT)
+    os.close(slave)
+    chunks = []
+    while True:
+        try:
+            data = os.read(master, 4096)
+        except OSError:  # the child closed its end
+            break
+        if not data:
+            break
+        chunks.append(data)
+    process.wait()
+    os.close(master)
+    assert process.returncode == 0
+    assert "desurveying" in b"".join(chunks).decode("utf-8", "replace")
+    piped = subprocess.run(argv, capture_output=True, text=True, cwd=ROOT)
+    assert piped.returncode == 0 and "desurveying" not in piped.stderr
