@@ -182,6 +182,15 @@ def _write_findings(tables, rejected, out: Path) -> None:
     write_csv(rejected, out / "rejected.csv")
 
 
+def _checked_tables(args, out: Path):
+    """Read, validate and write findings.csv and rejected.csv (the rows that --skip-bad-rows leaves
+    out); return the usable tables, or raise ValidationError when errors remain and rows may not be
+    skipped."""
+    tables = _read(args)
+    _write_findings(tables, _rows_would_reject(tables), out)
+    return tables.usable(skip_bad_rows=getattr(args, "skip_bad_rows", False))
+
+
 def _rows_would_reject(tables):
     _, rejected = tables.usable(skip_bad_rows=True)
     return rejected
@@ -260,9 +269,7 @@ def cmd_desurvey(args, console: Console) -> int:
     with console.stages(["reading and validating", "desurveying", "writing traces and samples"]) as step:
         step("reading and validating")
         tables = _read(args)
-        rejected = _rows_would_reject(tables)
-        _write_findings(tables, rejected if args.skip_bad_rows else rejected.iloc[:0], out)
-        tables, rejected = tables.usable(skip_bad_rows=args.skip_bad_rows)
+        tables, rejected = _checked_tables(args, out)
         trace, traces, samples = _desurvey(tables, args, out, console, step)
     if len(rejected):
         console.say(f"{len(rejected)} row(s) left out -> {out / 'rejected.csv'}")
@@ -287,10 +294,7 @@ def cmd_demo(args, console: Console) -> int:
             dip_convention="negative-down", azimuth_offset=0.0, below_detection="half",
             missing_marker=[], missing_code=[], category=[], method="minimum-curvature", step=1.0,
         )
-        tables = _read(table_args)
-        rejected = _rows_would_reject(tables)
-        _write_findings(tables, rejected, out)
-        tables, rejected = tables.usable(skip_bad_rows=False)
+        tables, rejected = _checked_tables(table_args, out)
         trace, traces, samples = _desurvey(tables, table_args, out, console, step)
     truth = program.truth
     console.say(f"drillaxis demo: the invented Tarn Hill program (seed {args.seed}) -> {out / 'data'}")
