@@ -137,6 +137,37 @@ def build_parser() -> argparse.ArgumentParser:
                    help="leave out rows with errors (listed in rejected.csv) instead of refusing to run")
     _common_options(p)
 
+    p = commands.add_parser("composite", help="composite samples to a common length, keeping metal",
+                            description="Desurvey and composite the intervals. Writes composites.csv, "
+                                        "composite_check.csv (metal in = metal out, per hole, domain "
+                                        "and value), composite_summary.json and rejected.csv.")
+    _table_options(p)
+    shape = p.add_argument_group("composites")
+    shape.add_argument("--length", type=float, metavar="L", help="composite length in metres")
+    shape.add_argument("--domain", metavar="COLUMN", help="category column whose changes break composites")
+    shape.add_argument("--residual", choices=("merge", "drop", "keep"), default="merge",
+                       help="rule for the short piece at the end of a run (default: merge)")
+    shape.add_argument("--merge-below", type=float, default=0.5, metavar="F",
+                       help="merge joins a residual shorter than F x L to the previous composite (default 0.5)")
+    shape.add_argument("--equal", action="store_true",
+                       help="split each run into round(run / L) composites of equal length")
+    shape.add_argument("--min-coverage", type=float, default=0.5, metavar="F",
+                       help="leave out composites whose sampled length is below F x length (default 0.5)")
+    shape.add_argument("--density", metavar="COLUMN", help="weight by length x density from this column")
+    shape.add_argument("--density-default", type=float, metavar="VALUE",
+                       help="density to use where the density column is missing")
+    shape.add_argument("--whole-run", action="store_true", help="one composite per run (domain intersection)")
+    shape.add_argument("--bench", type=float, metavar="H", help="composite by slices of elevation H metres high")
+    shape.add_argument("--bench-base", type=float, default=0.0, metavar="Z",
+                       help="an elevation on a bench boundary (default 0)")
+    shape.add_argument("--cap", action="append", default=[], metavar="COLUMN=VALUE",
+                       help="cap a value column before compositing; repeatable")
+    p.add_argument("--method", choices=("minimum-curvature", "balanced-tangential", "tangential"),
+                   default="minimum-curvature", help="desurvey method (default: minimum-curvature)")
+    p.add_argument("--skip-bad-rows", action="store_true",
+                   help="leave out rows with errors (listed in rejected.csv) instead of refusing to run")
+    _common_options(p)
+
     p = commands.add_parser("demo", help="run the workflow on a built-in synthetic drill program",
                             description="Generate the invented Tarn Hill drill program with a known "
                                         "anisotropy, run the workflow on it and compare with the truth.")
@@ -153,6 +184,9 @@ def build_parser() -> argparse.ArgumentParser:
 def _read(args, console=None):
     from .tables import parse_column_options, read_tables
 
+    categories = list(args.category)
+    if getattr(args, "domain", None):
+        categories.append(args.domain)
     return read_tables(
         args.collars, args.surveys, args.intervals,
         columns=parse_column_options(args.column),
@@ -160,7 +194,7 @@ def _read(args, console=None):
         below_detection=args.below_detection,
         missing_markers=args.missing_marker,
         missing_codes=args.missing_code,
-        category_columns=args.category,
+        category_columns=categories,
     )
 
 
@@ -277,13 +311,95 @@ def cmd_desurvey(args, console: Console) -> int:
     return 0
 
 
+def _composite_options(args):
+    from .composite import CompositeOptions
+
+    modes = [name for name, on in (("--length", args.length is not None and not (args.whole_run or args.bench)),
+                                   ("--whole-run", args.whole_run), ("--bench", args.bench is not None)) if on]
+    if args.whole_run and args.bench is not None:
+        raise UsageError("--whole-run and --bench are two ways of compositing: give one.")
+    if not modes:
+        raise UsageError("give --length L (fixed-length composites), --whole-run or --bench H.")
+    caps = {}
+    for item in args.cap:
+        column, _, value = item.partition("=")
+        try:
+            caps[column.strip()] = float(value)
+        except ValueError:
+            raise UsageError(f"--cap {item!r}: write COLUMN=VALUE, for example --cap au_gpt=30.") from None
+    mode = "whole-run" if args.whole_run else "bench" if args.bench is not None else "length"
+    return CompositeOptions(
+        length_m=args.length, domain=args.domain, residual=args.residual, merge_below=args.merge_below,
+        equal=args.equal, min_coverage=args.min_coverage, density=args.density,
+        density_default=args.density_default, mode=mode, bench_height_m=args.bench,
+        bench_base_m=args.bench_base, caps=caps,
+    )
+
+
+def _composite(tables, rejected, args, out: Path, step, trace=None):
+    import pandas as pd
+
+    from .composite import composite
+    from .desurvey import Desurvey
+    from .outputs import write_csv, write_json
+
+    options = _composite_options(args)
+    if trace is None:
+        step("desurveying")
+        trace = Desurvey(args.method, args.dip_convention, args.azimuth_offset).fit(tables.collars, tables.surveys)
+    step("compositing")
+    columns = ["hole", "from", "to", *tables.value_columns] + ([options.domain] if options.domain else [])
+    result = composite(tables.intervals[columns], tables.value_columns, options, trace)
+    step("writing composites")
+    write_csv(result.composites, out / "composites.csv")
+    write_csv(result.check, out / "composite_check.csv")
+    write_json(result.summary, out / "composite_summary.json")
+    left = pd.concat([rejected, result.left_out], ignore_index=True)
+    first = [c for c in ("table", "line", "hole", "from", "to", "domain", "reason") if c in left.columns]
+    write_csv(left[first + [c for c in left.columns if c not in first]], out / "rejected.csv")
+    return result
+
+
+def _composite_summary(result, out: Path, console: Console):
+    s = result.summary
+    console.say(f"composites ({s['mode']}): {s['composites']} from {s['samples']} samples in {s['runs']} runs "
+                f"-> {out / 'composites.csv'}")
+    console.say(f"  weighting: {s['weighting']}")
+    left = s["left_out"]
+    if left["residuals_dropped"] or left["below_min_coverage"]:
+        console.say(f"  left out: {left['residuals_dropped']} residual(s) dropped, {left['below_min_coverage']} "
+                    f"below the minimum coverage (listed with their metal in rejected.csv)")
+    for cap in s["caps"]:
+        share = cap["metal_removed"] / cap["metal_before"] if cap["metal_before"] else 0.0
+        console.say(f"  cap {cap['column']} at {cap['cap']:g}: {cap['samples_capped']} sample(s) capped, "
+                    f"metal removed {cap['metal_removed']:.6g} ({100 * share:.2f}%)")
+    for warning in result.warnings:
+        console.say(f"  warning: {warning}")
+    console.say(f"  metal check: largest difference {s['largest_metal_difference']:.3g} "
+                f"-> {out / 'composite_check.csv'}")
+
+
+def cmd_composite(args, console: Console) -> int:
+    out = _out_dir(args.out)
+    _composite_options(args)  # usage errors before any reading
+    names = ["reading and validating", "desurveying", "compositing", "writing composites"]
+    with console.stages(names) as step:
+        step(names[0])
+        tables, rejected = _checked_tables(args, out)
+        result = _composite(tables, rejected, args, out, step)
+    if len(rejected):
+        console.say(f"{len(rejected)} input row(s) left out -> {out / 'rejected.csv'}")
+    _composite_summary(result, out, console)
+    return 0
+
+
 def cmd_demo(args, console: Console) -> int:
     from synthetic_holes import ProgramSpec, generate_program
 
     started = time.perf_counter()
     out = _out_dir(args.out)
     names = ["generating the drill program", "reading and validating", "desurveying",
-             "writing traces and samples"]
+             "writing traces and samples", "compositing", "writing composites"]
     with console.stages(names) as step:
         step(names[0])
         program = generate_program(ProgramSpec(), seed=args.seed)
@@ -293,13 +409,17 @@ def cmd_demo(args, console: Console) -> int:
             collars=paths["collars"], surveys=paths["surveys"], intervals=paths["intervals"], column=[],
             dip_convention="negative-down", azimuth_offset=0.0, below_detection="half",
             missing_marker=[], missing_code=[], category=[], method="minimum-curvature", step=1.0,
+            domain="domain", length=2.0, residual="merge", merge_below=0.5, equal=False, min_coverage=0.5,
+            density="density", density_default=2.7, whole_run=False, bench=None, bench_base=0.0, cap=[],
         )
         tables, rejected = _checked_tables(table_args, out)
         trace, traces, samples = _desurvey(tables, table_args, out, console, step)
+        result = _composite(tables, rejected, table_args, out, step, trace)
     truth = program.truth
     console.say(f"drillaxis demo: the invented Tarn Hill program (seed {args.seed}) -> {out / 'data'}")
     _findings_summary(tables, console, out, limit=5)
     _desurvey_summary(trace, traces, samples, "minimum-curvature", out, console)
+    _composite_summary(result, out, console)
     model = truth["model"]
     o = model["orientation"]
     console.say("truth behind the grades (truth.json):")
@@ -309,12 +429,12 @@ def cmd_demo(args, console: Console) -> int:
     console.say(f"  major axis trend {o['major']['trend']:.1f} plunge {o['major']['plunge']:.1f}; "
                 f"plane dip direction {o['plane']['dip_direction']:.1f} dip {o['plane']['dip']:.1f}; "
                 f"pitch {o['pitch']:.1f}")
-    console.say("  (compositing, variograms and the fitted ellipsoid join the demo in later releases)")
+    console.say("  (variograms and the fitted ellipsoid join the demo in later releases)")
     console.say(f"done in {time.perf_counter() - started:.1f} s")
     return 0
 
 
-COMMANDS = {"check": cmd_check, "desurvey": cmd_desurvey, "demo": cmd_demo}
+COMMANDS = {"check": cmd_check, "desurvey": cmd_desurvey, "composite": cmd_composite, "demo": cmd_demo}
 
 
 def main(argv=None) -> int:

@@ -79,7 +79,7 @@ def test_desurvey_methods(write_tables, tmp_path, capsys, method):
     assert code == 0
 
 
-@pytest.mark.parametrize("command", ["check", "desurvey", "demo"])
+@pytest.mark.parametrize("command", ["check", "desurvey", "composite", "demo"])
 def test_help_of_each_command(command, capsys):
     with pytest.raises(SystemExit) as info:
         main([command, "--help"])
@@ -205,3 +205,34 @@ def test_progress_bar_on_a_terminal_only(write_tables, tmp_path):
     assert "desurveying" in b"".join(chunks).decode("utf-8", "replace")
     piped = subprocess.run(argv, capture_output=True, text=True, cwd=ROOT)
     assert piped.returncode == 0 and "desurveying" not in piped.stderr
+
+
+def test_composite_end_to_end_on_a_synthetic_program(tmp_path, capsys):
+    from synthetic_holes import ProgramSpec, generate_program
+
+    program = generate_program(ProgramSpec(n_along=6, n_lines=4, hole_length_m=120.0), seed=12)
+    paths = program.write(tmp_path / "data")
+    code, out, err = run(["composite", *table_args(paths), "--length", "2", "--domain", "domain",
+                          "--density", "density", "--density-default", "2.7", "--cap", "au_gpt=8",
+                          "--out", tmp_path / "c"], capsys)
+    assert code == 0, err
+    composites = pd.read_csv(tmp_path / "c" / "composites.csv")
+    assert list(composites.columns[:11]) == ["hole", "from", "to", "length", "sampled", "x", "y", "z", "domain",
+                                             "au_gpt", "density"]
+    check = pd.read_csv(tmp_path / "c" / "composite_check.csv")
+    assert check["difference"].abs().max() < 1e-9
+    assert set(check["domain"]) == {"OXIDE", "FRESH"}
+    rejected = pd.read_csv(tmp_path / "c" / "rejected.csv")
+    assert set(rejected["table"]) <= {"composites"}
+    # what the composites hold plus what was left out is the capped input metal, per domain
+    for domain, part in check[check.value == "au_gpt"].groupby("domain"):
+        kept = composites[composites.domain == domain]
+        assert part["composite_metal"].sum() + part["left_out_metal"].sum() == pytest.approx(
+            part["input_after_cap"].sum(), rel=1e-12)
+        assert len(kept) > 0
+    assert "weighting: length x density" in out and "metal check" in out
+    code, _, err = run(["composite", *table_args(paths), "--out", tmp_path / "d"], capsys)
+    assert code == 2 and "--length" in err
+    code, _, err = run(["composite", *table_args(paths), "--length", "2", "--density", "density",
+                        "--out", tmp_path / "e"], capsys)
+    assert code == 1 and "--density-default" in err
