@@ -1,8 +1,11 @@
 """The one place that sets numba's compile options, and a context manager for thread counts.
 
 Kernels use ``@jit`` or ``@jit_parallel`` from here and never set their own options. ``fastmath`` is a
-set of flags that keeps NaN and infinity handling correct (grades hold NaNs): contraction,
-reassociation, reciprocal and approximate functions only; never ``nnan``/``ninf``.
+set of flags that keeps NaN and infinity handling correct (grades hold NaNs) and keeps arithmetic
+exactly as written: only ``nsz`` (the sign of zero may be ignored). Contraction into fused
+multiply-adds, reassociation and approximate functions are left out on purpose: separations that sit
+exactly on lag-bin edges (down-hole pairs at multiples of the composite length, grids) must fall in
+the same bin in the kernels as in the slow references and for any thread count.
 """
 
 from __future__ import annotations
@@ -11,7 +14,7 @@ import contextlib
 
 import numba
 
-FASTMATH = {"contract", "reassoc", "arcp", "afn"}
+FASTMATH = {"nsz"}
 OPTIONS = dict(nogil=True, cache=True, fastmath=FASTMATH)
 
 

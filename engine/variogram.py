@@ -1,0 +1,339 @@
+"""Experimental variograms: the sets (omnidirectional, directional, down-hole, volume), the measures
+computed from the bin sums, and the tables written to ``variograms.csv``.
+
+Bins (docs/conventions.md): lag bin k = 1..N holds the pairs with k lag - tol < d <= k lag + tol; bin 0
+(0 <= d <= tol) holds pairs closer than the first bin, duplicates among them. With the default
+tolerance lag / 2 the bins tile the distances and a pair on the edge between two bins belongs to the
+lower one. A directional set takes the pairs whose separation is within the angle tolerance of its
+direction (either sense), no further than the across bandwidth from the direction's vertical plane
+and no further than the vertical bandwidth along it. Head and tail: in a directional set the head is
+the end the separation points to along the direction; down the hole the deeper sample; elsewhere the
+lower sample (then the southern, then the western).
+
+Example
+-------
+>>> import numpy as np
+>>> xyz = np.c_[np.arange(15.0) * 50.0, np.zeros(15), np.zeros(15)]
+>>> grades = np.array([28, 25, 27, 25, 21, 25, 11, 16, 11, 17, 27, 26, 25, 26, 21.0])
+>>> sets = Sets(omni=LagBins(50.0, 4))
+>>> table = experimental_variograms(xyz, grades, sets)
+>>> table[["lag", "pairs", "gamma"]].round(6).values.tolist()[:2]
+[[50.0, 14.0, 16.392857], [100.0, 13.0, 22.153846]]
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from scipy.special import ndtri
+from scipy.stats import rankdata
+
+from .errors import UsageError
+from .orientation import vector_from_trend_plunge
+from .pairs import PairIndex
+from .pairs import _kernels as k
+
+MEASURES = ("semivariogram", "standardized", "covariance", "correlogram", "pairwise-relative",
+            "general-relative", "madogram")
+
+
+@dataclass(frozen=True)
+class LagBins:
+    """N lags of ``lag_m`` metres with a tolerance (default half the lag)."""
+
+    lag_m: float
+    count: int
+    tolerance_m: float | None = None
+
+    @property
+    def tolerance(self) -> float:
+        return 0.5 * self.lag_m if self.tolerance_m is None else float(self.tolerance_m)
+
+    @property
+    def reach_m(self) -> float:
+        return self.count * self.lag_m + self.tolerance
+
+    def check(self, name):
+        if not (self.lag_m > 0) or self.count < 1 or not (self.tolerance >= 0):
+            raise UsageError(f"{name}: lag must be above zero, lags at least 1 and the tolerance not negative")
+        if self.tolerance > 30 * self.lag_m:
+            raise UsageError(f"{name}: a lag tolerance above 30 lags is not supported")
+
+
+@dataclass(frozen=True)
+class Direction:
+    """A direction (trend, plunge, degrees) with its angle tolerance and bandwidths (m)."""
+
+    trend_deg: float
+    plunge_deg: float
+    angle_tolerance_deg: float = 22.5
+    bandwidth_m: float = math.inf
+    vertical_bandwidth_m: float = math.inf
+
+    def frame(self) -> np.ndarray:
+        """u, then the horizontal unit vector across the direction's vertical plane, then the unit
+        vector in that plane perpendicular to u: 9 numbers."""
+        u = vector_from_trend_plunge(self.trend_deg, self.plunge_deg)
+        across = np.cross(u, [0.0, 0.0, 1.0])
+        if np.linalg.norm(across) < 1e-12:  # a vertical direction: take east as across
+            across = np.array([1.0, 0.0, 0.0])
+        across /= np.linalg.norm(across)
+        along = np.cross(across, u)
+        return np.concatenate([u, across, along])
+
+
+@dataclass(frozen=True)
+class VolumeGrid:
+    """A grid of lag vectors: cells of ``cell_m`` (east, north, up) metres, ``half_counts`` cells
+    each side of zero along each axis (41 x 41 x 21 cells is half counts 20, 20, 10)."""
+
+    cell_m: tuple = (10.0, 10.0, 5.0)
+    half_counts: tuple = (20, 20, 10)
+
+    @property
+    def reach_m(self) -> float:
+        return float(np.linalg.norm([(n + 0.5) * c for n, c in zip(self.half_counts, self.cell_m)]))
+
+    @property
+    def stored_cells(self) -> int:
+        nx, ny, nz = self.half_counts
+        return (nz + 1) * (2 * ny + 1) * (2 * nx + 1)
+
+
+@dataclass
+class Sets:
+    """Which sets one pass fills. ``pairs`` is "all", "across-holes" or "same-hole"."""
+
+    omni: LagBins | None = None
+    directions: list = field(default_factory=list)
+    directional_bins: LagBins | None = None
+    downhole: LagBins | None = None
+    volume: VolumeGrid | None = None
+    pairs: str = "all"
+
+    def plan(self) -> "Plan":
+        return Plan(self)
+
+
+class Plan:
+    """The integer layout, float parameters and direction frames the kernels read."""
+
+    def __init__(self, sets: Sets):
+        if sets.pairs not in ("all", "across-holes", "same-hole"):
+            raise UsageError(f"pairs {sets.pairs!r}: use all, across-holes or same-hole")
+        self.sets = sets
+        layout = np.zeros(k.L_WIDTH, dtype=np.int64)
+        params = np.zeros(k.F_WIDTH)
+        slot = 0
+        reach = [0.0]
+        layout[k.L_OMNI_N] = -1
+        layout[k.L_DH_N] = -1
+        layout[k.L_VOL_NX] = -1
+        if sets.omni is not None:
+            sets.omni.check("omnidirectional bins")
+            layout[k.L_OMNI_SLOT], layout[k.L_OMNI_N] = slot, sets.omni.count
+            params[k.F_OMNI_LAG], params[k.F_OMNI_TOL] = sets.omni.lag_m, sets.omni.tolerance
+            slot += sets.omni.count + 1
+            reach.append(sets.omni.reach_m)
+        self.directions = np.zeros((max(1, len(sets.directions)), 9))
+        self.dir_params = np.zeros((max(1, len(sets.directions)), 3))
+        if sets.directions:
+            bins = sets.directional_bins or sets.omni
+            if bins is None:
+                raise UsageError("directional sets need lag bins")
+            bins.check("directional bins")
+            layout[k.L_DIR_SLOT], layout[k.L_DIR_COUNT], layout[k.L_DIR_N] = slot, len(sets.directions), bins.count
+            params[k.F_DIR_LAG], params[k.F_DIR_TOL] = bins.lag_m, bins.tolerance
+            for s, d in enumerate(sets.directions):
+                self.directions[s] = d.frame()
+                self.dir_params[s] = [math.cos(math.radians(d.angle_tolerance_deg)), d.bandwidth_m,
+                                      d.vertical_bandwidth_m]
+            slot += len(sets.directions) * (bins.count + 1)
+            reach.append(bins.reach_m)
+            self.directional_bins = bins
+        if sets.downhole is not None:
+            sets.downhole.check("down-hole bins")
+            layout[k.L_DH_SLOT], layout[k.L_DH_N] = slot, sets.downhole.count
+            params[k.F_DH_LAG], params[k.F_DH_TOL] = sets.downhole.lag_m, sets.downhole.tolerance
+            slot += sets.downhole.count + 1
+            reach.append(sets.downhole.reach_m)
+        if sets.volume is not None:
+            v = sets.volume
+            layout[k.L_VOL_SLOT] = slot
+            layout[k.L_VOL_NX], layout[k.L_VOL_NY], layout[k.L_VOL_NZ] = v.half_counts
+            params[k.F_VOL_CX], params[k.F_VOL_CY], params[k.F_VOL_CZ] = v.cell_m
+            slot += v.stored_cells
+            reach.append(v.reach_m)
+        layout[k.L_FILTER] = {"all": 0, "across-holes": 1, "same-hole": 2}[sets.pairs]
+        self.layout = layout
+        self.params = params
+        self.n_slots = max(slot, 1)
+        self.max_distance_m = max(reach)
+
+
+# --------------------------------------------------------------------------------------------
+# transforms
+# --------------------------------------------------------------------------------------------
+
+
+def normal_scores(values) -> np.ndarray:
+    """Normal scores of the finite values (ties share their mean rank); NaN stays NaN."""
+    values = np.asarray(values, dtype=np.float64)
+    out = np.full(values.shape, np.nan)
+    finite = np.isfinite(values)
+    n = int(finite.sum())
+    if n:
+        out[finite] = ndtri((rankdata(values[finite]) - 0.5) / n)
+    return out
+
+
+def indicator(values, threshold: float) -> np.ndarray:
+    """1 where the value is at or below the threshold, 0 above it, NaN where missing."""
+    values = np.asarray(values, dtype=np.float64)
+    return np.where(np.isnan(values), np.nan, (values <= threshold).astype(np.float64))
+
+
+# --------------------------------------------------------------------------------------------
+# measures
+# --------------------------------------------------------------------------------------------
+
+
+def measure_from_sums(stats: np.ndarray, measure: str = "semivariogram") -> np.ndarray:
+    """A measure per bin from the 10 sums of one variable, ``stats`` (bins, 10). NaN where a bin has
+    no pairs or the measure is undefined."""
+    if measure not in MEASURES:
+        raise UsageError(f"measure {measure!r}: use one of {', '.join(MEASURES)}")
+    s = np.asarray(stats, dtype=np.float64)
+    n = s[:, k.COUNT]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mh, mt = s[:, k.SUM_H] / n, s[:, k.SUM_T] / n
+        gamma = s[:, k.SUM_SQ] / (2 * n)
+        if measure == "semivariogram":
+            out = gamma
+        elif measure == "madogram":
+            out = s[:, k.SUM_ABS] / (2 * n)
+        elif measure == "pairwise-relative":
+            out = s[:, k.SUM_PR] / (2 * n)
+        elif measure == "general-relative":
+            out = gamma / (0.5 * (mh + mt)) ** 2
+        else:
+            cov = s[:, k.SUM_HT] / n - mh * mt
+            if measure == "covariance":
+                out = cov
+            elif measure == "correlogram":
+                vh = s[:, k.SUM_H2] / n - mh * mh
+                vt = s[:, k.SUM_T2] / n - mt * mt
+                out = cov / np.sqrt(vh * vt)
+            else:  # standardized: by the variance of the pairs' data (heads and tails together)
+                m = (s[:, k.SUM_H] + s[:, k.SUM_T]) / (2 * n)
+                var = (s[:, k.SUM_H2] + s[:, k.SUM_T2]) / (2 * n) - m * m
+                out = gamma / var
+    out = np.where(n > 0, out, np.nan)
+    return out
+
+
+@dataclass
+class Accumulation:
+    """The bin sums of one pass, with the plan that lays them out."""
+
+    sums: np.ndarray  # (slots, columns)
+    plan: Plan
+    n_values: int
+    candidates: int
+    accepted: int
+
+    def stats(self, variable: int = 0) -> np.ndarray:
+        return self.sums[:, variable * k.N_STATS:(variable + 1) * k.N_STATS]
+
+    def cross(self, a: int, b: int) -> tuple[np.ndarray, np.ndarray]:
+        """Count and sum of difference products of variables a < b, per slot."""
+        index = 0
+        for p in range(self.n_values):
+            for q in range(p + 1, self.n_values):
+                if (p, q) == (a, b):
+                    base = self.n_values * k.N_STATS + 2 * index
+                    return self.sums[:, base], self.sums[:, base + 1]
+                index += 1
+        raise UsageError(f"no cross terms for variables {a} and {b}")
+
+    def volume(self, variable: int = 0, measure: str = "semivariogram"):
+        """The full variogram volume (2nz+1, 2ny+1, 2nx+1) of a measure and its pair counts, indexed
+        [iz + nz, iy + ny, ix + nx] for the lag vector (ix cx, iy cy, iz cz), mirrored by h = -h."""
+        v = self.plan.sets.volume
+        if v is None:
+            raise UsageError("no volume in this pass")
+        nx, ny, nz = v.half_counts
+        start = self.plan.layout[k.L_VOL_SLOT]
+        stats = self.stats(variable)[start:start + v.stored_cells].reshape(nz + 1, 2 * ny + 1, 2 * nx + 1, k.N_STATS)
+        full = np.zeros((2 * nz + 1, 2 * ny + 1, 2 * nx + 1, k.N_STATS))
+        # stored index 0..nz is iz = 0, -1, ..., -nz
+        for j in range(nz + 1):
+            full[nz - j] += stats[j]
+        mirrored = full[::-1, ::-1, ::-1].copy()
+        swap = mirrored.copy()  # -h holds the same pairs with head and tail exchanged
+        swap[..., k.SUM_H], swap[..., k.SUM_T] = mirrored[..., k.SUM_T], mirrored[..., k.SUM_H]
+        swap[..., k.SUM_H2], swap[..., k.SUM_T2] = mirrored[..., k.SUM_T2], mirrored[..., k.SUM_H2]
+        upper = np.zeros(full.shape[:3], dtype=bool)  # cells not stored: iz > 0, or iz = 0 with (iy, ix) > 0
+        upper[nz + 1:] = True
+        plane = upper[nz]
+        plane[ny + 1:, :] = True
+        plane[ny, nx + 1:] = True
+        full[upper] = swap[upper]
+        values = measure_from_sums(full.reshape(-1, k.N_STATS), measure).reshape(full.shape[:3])
+        return values, full[..., k.COUNT]
+
+
+def accumulate(xyz, values, sets: Sets, hole=None, depth=None, index: PairIndex | None = None,
+               threads: int | None = None, brute_force: bool = False) -> Accumulation:
+    """One pass over every pair: fill the bins of ``sets`` for every column of ``values``."""
+    plan = sets.plan()
+    if index is None:
+        index = PairIndex(xyz, hole, depth, max_distance_m=plan.max_distance_m)
+    values = np.asarray(values, dtype=np.float64)
+    n_values = 1 if values.ndim == 1 else values.shape[1]
+    sums, candidates, accepted = index.run(values, plan, threads=threads, brute_force=brute_force)
+    return Accumulation(sums, plan, n_values, candidates, accepted)
+
+
+def variogram_table(acc: Accumulation, measure: str = "semivariogram", variable: int = 0) -> pd.DataFrame:
+    """Rows ``set, direction, trend, plunge, lag, distance, pairs, gamma`` (the measure) plus the head
+    and tail means, for every lag k >= 1 of every line set (omni, directional, down-hole)."""
+    stats = acc.stats(variable)
+    plan = acc.plan
+    frames = []
+
+    def rows(name, start, count, lag_m, direction="", trend=np.nan, plunge=np.nan):
+        part = stats[start + 1:start + count + 1]
+        n = part[:, k.COUNT]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            frames.append(pd.DataFrame({
+                "set": name, "direction": direction, "trend": trend, "plunge": plunge,
+                "lag": np.arange(1, count + 1, dtype=np.float64) * lag_m,
+                "distance": np.where(n > 0, part[:, k.SUM_D] / n, np.nan), "pairs": n,
+                "gamma": measure_from_sums(part, measure),
+                "mean_head": np.where(n > 0, part[:, k.SUM_H] / n, np.nan),
+                "mean_tail": np.where(n > 0, part[:, k.SUM_T] / n, np.nan),
+            }))
+
+    sets = plan.sets
+    if sets.omni is not None:
+        rows("omni", plan.layout[k.L_OMNI_SLOT], sets.omni.count, sets.omni.lag_m)
+    if sets.directions:
+        bins = plan.directional_bins
+        for s, d in enumerate(sets.directions):
+            rows("directional", plan.layout[k.L_DIR_SLOT] + s * (bins.count + 1), bins.count, bins.lag_m,
+                 f"{d.trend_deg:g}/{d.plunge_deg:g}", d.trend_deg, d.plunge_deg)
+    if sets.downhole is not None:
+        rows("downhole", plan.layout[k.L_DH_SLOT], sets.downhole.count, sets.downhole.lag_m)
+    table = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(
+        columns=["set", "direction", "trend", "plunge", "lag", "distance", "pairs", "gamma"])
+    table.insert(len(table.columns), "measure", measure)
+    return table
+
+
+def experimental_variograms(xyz, values, sets: Sets, measure: str = "semivariogram", **options) -> pd.DataFrame:
+    """Convenience: one pass and the table of one variable."""
+    return variogram_table(accumulate(xyz, values, sets, **options), measure)

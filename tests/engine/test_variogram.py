@@ -1,0 +1,310 @@
+"""The pair engine and the experimental variograms against slow references and outside checks."""
+
+import math
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from engine.pairs import PairIndex
+from engine.pairs import _kernels as k
+from engine.variogram import (Direction, LagBins, Sets, VolumeGrid, accumulate, experimental_variograms,
+                              indicator, measure_from_sums, normal_scores, variogram_table)
+from tests.reference.variogram_reference import NAMES, reference_sums
+
+ROOT = Path(__file__).resolve().parents[2]
+
+
+def holes_program(rng, n_holes=6, per_hole=25, spacing=7.0):
+    """Small inclined holes with duplicates, a collinear pair of holes and NaN values."""
+    xyz, hole, depth = [], [], []
+    for h in range(n_holes):
+        start = rng.uniform(0, 40, 3) if h != 1 else xyz[0][0] + np.array([0.0, 0.0, 30.0])
+        u = np.array([0.3, 0.2, -1.0]) if h < 2 else rng.normal(size=3) * [1, 1, 3] - [0, 0, 2]
+        u /= np.linalg.norm(u)
+        for s in range(per_hole):
+            xyz.append(start + u * s * 2.0)
+            hole.append(h)
+            depth.append(s * 2.0)
+    xyz = np.array(xyz)
+    xyz[5] = xyz[4]  # a duplicate point
+    values = rng.lognormal(0, 0.5, len(xyz))
+    values[rng.uniform(size=len(xyz)) < 0.1] = np.nan
+    return xyz, np.array(hole), np.array(depth), values
+
+
+ALL_SETS = Sets(
+    omni=LagBins(4.0, 8),
+    directions=[Direction(0, 90, 20), Direction(45, 10, 30, bandwidth_m=6, vertical_bandwidth_m=4),
+                Direction(300, 0, 22.5, bandwidth_m=5)],
+    directional_bins=LagBins(5.0, 6, 3.0),
+    downhole=LagBins(2.0, 8),
+    volume=VolumeGrid((5.0, 5.0, 4.0), (4, 4, 3)),
+)
+
+
+def engine_sums(acc, key, sets):
+    stats = acc.stats(0)
+    plan = acc.plan
+    if key[0] == "omni":
+        row = stats[plan.layout[k.L_OMNI_SLOT] + key[2]]
+    elif key[0] == "directional":
+        row = stats[plan.layout[k.L_DIR_SLOT] + key[1] * (plan.directional_bins.count + 1) + key[2]]
+    elif key[0] == "downhole":
+        row = stats[plan.layout[k.L_DH_SLOT] + key[2]]
+    else:
+        raise KeyError(key)
+    return row
+
+
+@pytest.mark.parametrize("pairs", ["all", "across-holes", "same-hole"])
+def test_every_set_equals_the_double_loop(pairs):
+    # reference library / slow obvious reference: counts exactly, sums to 1e-10
+    rng = np.random.default_rng(3)
+    xyz, hole, depth, values = holes_program(rng)
+    sets = Sets(**{**ALL_SETS.__dict__, "pairs": pairs})
+    acc = accumulate(xyz, values, sets, hole=hole, depth=depth)
+    want = reference_sums(xyz, values, hole, depth, sets)
+    volume_sums, volume_counts = {}, None
+    for key, row in want.items():
+        if key[0] == "volume":
+            continue
+        got = engine_sums(acc, key, sets)
+        for q, name in enumerate(NAMES):
+            assert got[q] == pytest.approx(row[name], abs=1e-10, rel=1e-12), (key, name)
+    # and nothing the reference did not find
+    for name, slot_start, count, width in (("omni", acc.plan.layout[k.L_OMNI_SLOT], 1, 9),
+                                           ("downhole", acc.plan.layout[k.L_DH_SLOT], 1, 9)):
+        total = acc.stats(0)[slot_start:slot_start + width, k.COUNT].sum()
+        assert total == sum(r["count"] for key, r in want.items() if key[0] == name)
+    # the volume, mirrored to the full grid
+    gamma, counts = acc.volume(0)
+    nx, ny, nz = sets.volume.half_counts
+    for key, row in want.items():
+        if key[0] == "volume":
+            ix, iy, iz = key[1]
+            assert counts[iz + nz, iy + ny, ix + nx] == row["count"], key
+            assert gamma[iz + nz, iy + ny, ix + nx] == pytest.approx(row["sum_sq"] / (2 * row["count"]), rel=1e-12)
+    assert counts.sum() == sum(r["count"] for key, r in want.items() if key[0] == "volume")
+
+
+def test_cell_search_equals_brute_force_kernel_on_larger_data():
+    rng = np.random.default_rng(8)
+    xyz = rng.uniform(0, 200, (3000, 3)) * [1, 1, 0.3]
+    values = np.c_[rng.normal(size=3000), rng.lognormal(size=3000)]
+    sets = Sets(omni=LagBins(10, 6), directions=[Direction(30, 0, 15), Direction(0, 90, 10)],
+                directional_bins=LagBins(8, 7), volume=VolumeGrid((10, 10, 5), (5, 5, 3)))
+    fast = accumulate(xyz, values, sets)
+    slow = accumulate(xyz, values, sets, brute_force=True)
+    assert np.array_equal(fast.sums[:, k.COUNT], slow.sums[:, k.COUNT])
+    assert np.allclose(fast.sums, slow.sums, rtol=1e-11, atol=1e-9)
+    assert fast.accepted == slow.accepted and fast.candidates < slow.candidates
+
+
+def test_one_hole_empty_and_single_point():
+    xyz = np.c_[np.zeros(10), np.zeros(10), -np.arange(10.0)]
+    acc = accumulate(xyz, np.arange(10.0), Sets(omni=LagBins(1.0, 3), downhole=LagBins(1.0, 3)),
+                     hole=np.zeros(10), depth=np.arange(10.0))
+    t = variogram_table(acc)
+    assert t[t.set == "omni"]["pairs"].tolist() == [9, 8, 7]
+    assert t[t.set == "downhole"]["gamma"].tolist() == [0.5, 2.0, 4.5]
+    one = accumulate(np.zeros((1, 3)), [1.0], Sets(omni=LagBins(1.0, 2)))
+    assert one.sums[:, k.COUNT].sum() == 0
+    none = accumulate(np.zeros((0, 3)), np.zeros(0), Sets(omni=LagBins(1.0, 2)))
+    assert none.sums.sum() == 0
+
+
+def test_zero_lag_pairs_and_bin_edges():
+    # duplicates fall in bin 0 (not reported as a lag); a pair on the edge between two bins
+    # belongs to the lower one; down-hole separations that are multiples of the lag are exact
+    xyz = np.array([[0, 0, 0], [0, 0, 0], [3.0, 0, 0], [6.0, 0, 0]])
+    acc = accumulate(xyz, [1.0, 2.0, 3.0, 5.0], Sets(omni=LagBins(2.0, 3)))
+    counts = acc.stats(0)[:4, k.COUNT].tolist()
+    # lag 2, tolerance 1: d = 0 (the duplicate) -> bin 0; d = 3 (three pairs, on the edge between
+    # bins 1 and 2) -> bin 1; d = 6 (two pairs, the centre of bin 3) -> bin 3
+    assert counts == [1, 3, 0, 2]
+    depth = np.arange(0.0, 20.0, 2.0)
+    xyz = np.c_[np.zeros(10), np.zeros(10), -depth]
+    acc = accumulate(xyz, np.arange(10.0), Sets(downhole=LagBins(4.0, 4)), hole=np.zeros(10), depth=depth)
+    t = variogram_table(acc)
+    # separation 2m has 10 - m pairs; 2, 6, 10, 14 and 18 sit on edges and go to the lower bin:
+    # bin 1 holds 4 and 6, bin 2 holds 8 and 10, bin 3 holds 12 and 14, bin 4 holds 16 and 18
+    assert t["pairs"].tolist() == [8 + 7, 6 + 5, 4 + 3, 2 + 1]
+
+
+# ---- outside checks (CHECKS.md, "Experimental variograms")
+
+def test_published_1d_copper_series():
+    # data published in Dutter, Geostatistics lecture notes, TU Wien, 2003; gamma computed by hand
+    grades = np.array([28, 25, 27, 25, 21, 25, 11, 16, 11, 17, 27, 26, 25, 26, 21.0])
+    xyz = np.c_[np.arange(15) * 50.0, np.zeros(15), np.zeros(15)]
+    t = experimental_variograms(xyz, grades, Sets(omni=LagBins(50.0, 4)))
+    assert t["pairs"].tolist() == [14, 13, 12, 11]
+    assert t["gamma"].round(6).tolist() == [16.392857, 22.153846, 38.25, 55.409091]
+
+
+def test_linear_trend():
+    # analytic: z = a x along a line gives gamma(h) = a^2 h^2 / 2 exactly
+    x = np.arange(0.0, 50.0)
+    t = experimental_variograms(np.c_[x, 0 * x, 0 * x], 2.5 * x, Sets(omni=LagBins(1.0, 10)))
+    gamma = dict(zip(t["lag"], t["gamma"]))
+    assert (gamma[1.0], gamma[3.0], gamma[10.0]) == pytest.approx((3.125, 28.125, 312.5), rel=1e-12)
+
+
+def test_one_class_holding_every_pair_is_the_sample_variance():
+    # analytic: one lag class with every pair gives the variance with ddof = 1
+    rng = np.random.default_rng(1)
+    xyz = rng.uniform(0, 10, (300, 3))
+    z = rng.normal(size=300)
+    t = experimental_variograms(xyz, z, Sets(omni=LagBins(10.0, 1, 10.0)))
+    assert t["pairs"].iloc[0] == 300 * 299 / 2
+    assert t["gamma"].iloc[0] == pytest.approx(z.var(ddof=1), rel=1e-12)
+
+
+def test_independent_noise_is_flat():
+    # analytic: gamma ~ s^2 at every lag, within 5 s^2 sqrt(2 / N)
+    rng = np.random.default_rng(2)
+    n = 20000
+    xyz = np.c_[rng.uniform(0, 1000, n), rng.uniform(0, 1000, n), np.zeros(n)]
+    z = rng.normal(0, 2.0, n)
+    t = experimental_variograms(xyz, z, Sets(omni=LagBins(10.0, 5)))
+    assert np.all(np.abs(t["gamma"] - 4.0) < 5 * 4.0 * math.sqrt(2 / n))
+
+
+def test_reverse_direction_and_volume_symmetry():
+    # analytic: gamma(h) = gamma(-h); azimuth A equals A + 180; cell (i,j,k) equals (-i,-j,-k)
+    rng = np.random.default_rng(5)
+    xyz = rng.uniform(0, 100, (1500, 3)) * [1, 1, 0.5]
+    z = rng.normal(size=1500) + xyz[:, 0] / 30
+    sets = Sets(directions=[Direction(70, 20, 15), Direction(250, -20, 15)], directional_bins=LagBins(8, 6),
+                volume=VolumeGrid((8, 8, 6), (5, 5, 3)))
+    acc = accumulate(xyz, z, sets)
+    t = variogram_table(acc)
+    a, b = t[t.direction == "70/20"], t[t.direction == "250/-20"]
+    assert a["pairs"].tolist() == b["pairs"].tolist()
+    assert np.allclose(a["gamma"], b["gamma"], rtol=1e-12)
+    assert np.allclose(a["mean_head"], b["mean_tail"], rtol=1e-12)  # head and tail change places
+    gamma, counts = acc.volume(0)
+    assert np.array_equal(counts, counts[::-1, ::-1, ::-1])
+    assert np.allclose(np.nan_to_num(gamma), np.nan_to_num(gamma[::-1, ::-1, ::-1]), rtol=1e-12)
+
+
+def test_regular_grid_pair_counts():
+    # analytic: pairs at lag vector (i,j,k) on an nx x ny x nz grid = (nx-|i|)(ny-|j|)(nz-|k|)
+    nx, ny, nz = 9, 7, 5
+    g = np.stack(np.meshgrid(np.arange(nx), np.arange(ny), np.arange(nz), indexing="ij"), -1).reshape(-1, 3) * 2.0
+    acc = accumulate(g, np.ones(len(g)), Sets(volume=VolumeGrid((2.0, 2.0, 2.0), (4, 3, 2))))
+    _, counts = acc.volume(0)
+    for iz in range(-2, 3):
+        for iy in range(-3, 4):
+            for ix in range(-4, 5):
+                expected = (nx - abs(ix)) * (ny - abs(iy)) * (nz - abs(iz))
+                if (ix, iy, iz) == (0, 0, 0):
+                    expected = 0  # a point is not paired with itself
+                assert counts[iz + 2, iy + 3, ix + 4] == expected, (ix, iy, iz)
+
+
+def test_matplotlib_elevation_grid_against_numpy():
+    # reference library: matplotlib's bundled jacksboro_fault_dem.npz; the engine equals a
+    # brute-force numpy variogram along rows, columns and diagonals to 1e-10
+    cbook = pytest.importorskip("matplotlib.cbook")
+    data = cbook.get_sample_data("jacksboro_fault_dem.npz")  # an NpzFile
+    elevation = np.asarray(data["elevation"], dtype=np.float64)[:60, :60]
+    ny, nx = elevation.shape
+    yy, xx = np.mgrid[0:ny, 0:nx]
+    xyz = np.c_[xx.ravel() * 1.0, yy.ravel() * 1.0, np.zeros(xx.size)]
+    z = elevation.ravel()
+    sets = Sets(directions=[Direction(90, 0, 1e-6), Direction(0, 0, 1e-6), Direction(45, 0, 1e-6)],
+                directional_bins=LagBins(1.0, 6, 0.05))
+    t = variogram_table(accumulate(xyz, z, sets))
+    for direction, (sx, sy) in (("90/0", (1, 0)), ("0/0", (0, 1))):
+        got = t[t.direction == direction]
+        for lag in range(1, 7):
+            diff = elevation[lag * sy:, lag * sx:] - elevation[:ny - lag * sy, :nx - lag * sx]
+            row = got[got.lag == lag].iloc[0]
+            assert row["pairs"] == diff.size
+            assert row["gamma"] == pytest.approx(0.5 * np.mean(diff**2), rel=1e-10)
+    diagonal = t[t.direction == "45/0"]
+    for step in range(1, 5):  # diagonal step s has length s sqrt(2): lags 1.41, 2.83, 4.24, 5.66
+        diff = elevation[step:, step:] - elevation[:-step, :-step]
+        lag = round(step * math.sqrt(2))
+        if abs(step * math.sqrt(2) - lag) <= 0.05:
+            row = diagonal[diagonal.lag == lag].iloc[0]
+            assert row["gamma"] == pytest.approx(0.5 * np.mean(diff**2), rel=1e-10)
+
+
+def test_measures_from_sums():
+    h = np.array([1.0, 2.0, 4.0, 3.0])
+    t = np.array([2.0, 2.5, 3.0, 1.0])
+    s = np.zeros((1, k.N_STATS))
+    s[0] = [4, 0, h.sum(), t.sum(), (h**2).sum(), (t**2).sum(), ((h - t) ** 2).sum(), np.abs(h - t).sum(),
+            (h * t).sum(), (((h - t) / ((h + t) / 2)) ** 2).sum()]
+    assert measure_from_sums(s, "semivariogram")[0] == pytest.approx(((h - t) ** 2).mean() / 2)
+    assert measure_from_sums(s, "madogram")[0] == pytest.approx(np.abs(h - t).mean() / 2)
+    cov = (h * t).mean() - h.mean() * t.mean()
+    assert measure_from_sums(s, "covariance")[0] == pytest.approx(cov)
+    assert measure_from_sums(s, "correlogram")[0] == pytest.approx(np.corrcoef(h, t)[0, 1])
+    both = np.r_[h, t]
+    assert measure_from_sums(s, "standardized")[0] == pytest.approx(((h - t) ** 2).mean() / 2 / both.var())
+    assert measure_from_sums(s, "general-relative")[0] == pytest.approx(
+        ((h - t) ** 2).mean() / 2 / ((h.mean() + t.mean()) / 2) ** 2)
+    assert measure_from_sums(s, "pairwise-relative")[0] == pytest.approx(
+        (((h - t) / ((h + t) / 2)) ** 2).mean() / 2)
+
+
+def test_cross_semivariogram_and_transforms():
+    rng = np.random.default_rng(6)
+    xyz = np.c_[np.arange(200.0), np.zeros(200), np.zeros(200)]
+    u = rng.normal(size=200)
+    v = 0.5 * u + rng.normal(size=200)
+    acc = accumulate(xyz, np.c_[u, v], Sets(omni=LagBins(1.0, 3)))
+    count, sum_dd = acc.cross(0, 1)
+    for lag in (1, 2, 3):
+        du, dv = u[lag:] - u[:-lag], v[lag:] - v[:-lag]
+        assert count[lag] == 200 - lag
+        # the head is the southern/western point: here the one with larger x is the tail
+        assert sum_dd[lag] / (2 * count[lag]) == pytest.approx(np.mean(du * dv) / 2, rel=1e-12)
+    scores = normal_scores(np.array([3.0, 1.0, np.nan, 2.0]))
+    assert np.isnan(scores[2]) and scores[1] < scores[3] < scores[0] and abs(scores[3]) < 1e-12
+    assert indicator(np.array([0.5, 2.0, np.nan]), 1.0).tolist()[:2] == [1.0, 0.0]
+
+
+def test_pair_counts_identical_with_one_and_two_threads():
+    rng = np.random.default_rng(7)
+    xyz = rng.uniform(0, 300, (20000, 3)) * [1, 1, 0.2]
+    z = rng.normal(size=20000)
+    one = accumulate(xyz, z, ALL_SETS, threads=1)
+    two = accumulate(xyz, z, ALL_SETS, threads=2)
+    assert np.array_equal(one.sums[:, k.COUNT], two.sums[:, k.COUNT])
+    assert np.allclose(one.sums, two.sums, rtol=1e-10, atol=1e-9)  # sums in another order: round-off
+
+
+def test_kernel_runs_with_jit_disabled():
+    code = (
+        "import numpy as np\n"
+        "from engine.variogram import Sets, LagBins, Direction, VolumeGrid, experimental_variograms\n"
+        "g = np.array([28, 25, 27, 25, 21, 25, 11, 16, 11, 17, 27, 26, 25, 26, 21.0])\n"
+        "xyz = np.c_[np.arange(15) * 50.0, np.zeros(15), np.zeros(15)]\n"
+        "s = Sets(omni=LagBins(50.0, 4), directions=[Direction(90, 0, 10)], volume=VolumeGrid((50, 50, 50), (2, 1, 1)))\n"
+        "t = experimental_variograms(xyz, g, s)\n"
+        "print(' '.join(f'{v:.6f}' for v in t[t.set == 'omni']['gamma']))\n"
+    )
+    env = dict(os.environ, NUMBA_DISABLE_JIT="1")
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, cwd=ROOT)
+    assert result.returncode == 0, result.stderr
+    assert result.stdout.split() == ["16.392857", "22.153846", "38.250000", "55.409091"]
+
+
+def test_index_is_reused_across_variables_and_sets():
+    rng = np.random.default_rng(9)
+    xyz = rng.uniform(0, 100, (2000, 3))
+    index = PairIndex(xyz, max_distance_m=60.0)
+    a = accumulate(xyz, rng.normal(size=2000), Sets(omni=LagBins(10, 5)), index=index)
+    b = accumulate(xyz, rng.normal(size=2000), Sets(directions=[Direction(0, 0)], directional_bins=LagBins(10, 5)),
+                   index=index)
+    assert a.accepted == b.accepted
+    with pytest.raises(Exception):
+        accumulate(xyz, np.zeros(2000), Sets(omni=LagBins(10, 10)), index=index)  # reaches beyond 60 m
