@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import math
 import sys
 import time
 from pathlib import Path
@@ -166,6 +167,45 @@ def build_parser() -> argparse.ArgumentParser:
                    default="minimum-curvature", help="desurvey method (default: minimum-curvature)")
     p.add_argument("--skip-bad-rows", action="store_true",
                    help="leave out rows with errors (listed in rejected.csv) instead of refusing to run")
+    _common_options(p)
+
+    p = commands.add_parser("variogram", help="experimental variograms from composites",
+                            description="Experimental variograms of one value column: omnidirectional, "
+                                        "directional, down-hole and the variogram volume, in one pass "
+                                        "over the pairs. Writes variograms.csv and volume.npz.")
+    p.add_argument("--composites", required=True, metavar="FILE", help="composites.csv (or any table with "
+                   "hole, x, y, z and the value; from and to give the down-hole depth)")
+    p.add_argument("--value", required=True, metavar="COLUMN", help="the value column")
+    p.add_argument("--domain", metavar="COLUMN=VALUE", help="use only the composites of one domain")
+    lags = p.add_argument_group("lags")
+    lags.add_argument("--lag", type=float, metavar="M", help="lag spacing in metres (default: from the data)")
+    lags.add_argument("--lags", type=int, default=10, metavar="N", help="number of lags (default 10)")
+    lags.add_argument("--lag-tolerance", type=float, metavar="M", help="lag tolerance (default: half the lag)")
+    sets = p.add_argument_group("sets (none named: omnidirectional, down-hole and the volume)")
+    sets.add_argument("--omni", action="store_true", help="the omnidirectional variogram")
+    sets.add_argument("--directions", metavar="T/P,...", help="directions as trend/plunge, comma separated")
+    sets.add_argument("--angle-tolerance", type=float, default=22.5, metavar="DEG",
+                      help="half-angle of the directional cone (default 22.5)")
+    sets.add_argument("--bandwidth", type=float, default=math.inf, metavar="M",
+                      help="largest distance across the direction's vertical plane (default: none)")
+    sets.add_argument("--vertical-bandwidth", type=float, default=math.inf, metavar="M",
+                      help="largest distance within that plane, perpendicular to the direction (default: none)")
+    sets.add_argument("--downhole", action="store_true", help="pairs within a hole by along-hole separation")
+    sets.add_argument("--downhole-lag", type=float, metavar="M", help="down-hole lag (default: the median "
+                      "composite length)")
+    sets.add_argument("--volume", action="store_true", help="the variogram volume (a grid of lag vectors)")
+    sets.add_argument("--volume-cells", type=int, nargs=3, default=(20, 20, 10), metavar=("NX", "NY", "NZ"),
+                      help="cells each side of zero along east, north, up (default 20 20 10)")
+    p.add_argument("--measure", default="semivariogram",
+                   choices=("semivariogram", "standardized", "covariance", "correlogram", "pairwise-relative",
+                            "general-relative", "madogram"), help="what to compute (default: semivariogram)")
+    p.add_argument("--transform", choices=("none", "normal-score", "log"), default="none",
+                   help="transform the values before the pass (default: none)")
+    p.add_argument("--indicator", type=float, metavar="THRESHOLD",
+                   help="variogram of the indicator value <= THRESHOLD instead of the value")
+    p.add_argument("--pairs", choices=("all", "across-holes", "same-hole"), default="all",
+                   help="which pairs to use (default: all)")
+    p.add_argument("--threads", type=int, metavar="N", help="worker threads (default: all cores)")
     _common_options(p)
 
     p = commands.add_parser("demo", help="run the workflow on a built-in synthetic drill program",
@@ -393,6 +433,115 @@ def cmd_composite(args, console: Console) -> int:
     return 0
 
 
+def _read_composites(path, value, domain):
+    import numpy as np
+    import pandas as pd
+
+    from .errors import TableError
+    from .tables import read_raw_table
+
+    raw = read_raw_table(path, "composites", frozenset({"hole"}))
+    frame = raw.frame
+    missing = [c for c in ("hole", "x", "y", "z", value) if c not in frame.columns]
+    if missing:
+        raise TableError(f"{path}: no column {', '.join(map(repr, missing))}. Columns found: "
+                         f"{', '.join(map(repr, frame.columns))}.")
+    if domain:
+        column, _, wanted = domain.partition("=")
+        if column not in frame.columns:
+            raise UsageError(f"--domain {domain!r}: no column {column!r} in {path}.")
+        frame = frame[frame[column].astype(str) == wanted]
+        if frame.empty:
+            raise TableError(f"{path}: no composite has {column} = {wanted!r}.")
+    try:
+        xyz = frame[["x", "y", "z"]].to_numpy(dtype=np.float64)
+        values = pd.to_numeric(frame[value], errors="raise").to_numpy(dtype=np.float64)
+    except (ValueError, TypeError) as exc:
+        raise TableError(f"{path}: columns x, y, z and {value!r} must hold numbers ({exc}).") from None
+    keep = np.isfinite(xyz).all(axis=1)
+    hole = pd.factorize(frame["hole"])[0]
+    if "from" in frame.columns and "to" in frame.columns:
+        depth = 0.5 * (frame["from"].to_numpy(dtype=np.float64) + frame["to"].to_numpy(dtype=np.float64))
+        length = np.nanmedian(frame["to"].to_numpy(dtype=np.float64) - frame["from"].to_numpy(dtype=np.float64))
+    else:
+        depth, length = np.zeros(len(frame)), None
+    return xyz[keep], values[keep], hole[keep], depth[keep], length, int((~keep).sum())
+
+
+def cmd_variogram(args, console: Console) -> int:
+    import numpy as np
+
+    from .outputs import atomic_path, write_csv
+    from .pairs import PairIndex
+    from .variogram import (Direction, LagBins, Sets, VolumeGrid, accumulate, indicator, normal_scores,
+                            variogram_table)
+
+    out = _out_dir(args.out)
+    names = ["reading composites", "building the pair index", "counting pairs", "writing variograms"]
+    with console.stages(names) as step:
+        step(names[0])
+        xyz, values, hole, depth, length, unplaced = _read_composites(args.composites, args.value, args.domain)
+        if len(values) < 2:
+            raise UsageError(f"{args.composites}: fewer than two composites to pair.")
+        if args.transform == "log":
+            if (values[np.isfinite(values)] <= 0).any():
+                raise UsageError("--transform log needs values above zero.")
+            values = np.log(values)
+        elif args.transform == "normal-score":
+            values = normal_scores(values)
+        if args.indicator is not None:
+            values = indicator(values, args.indicator)
+        lag = args.lag
+        if lag is None:  # a tenth of a third of the largest extent, rounded
+            extent = float(np.max(xyz.max(axis=0) - xyz.min(axis=0)))
+            lag = max(float(np.round(extent / 30.0, 1)), 1e-3)
+        bins = LagBins(lag, args.lags, args.lag_tolerance)
+        directions = []
+        if args.directions:
+            for item in args.directions.split(","):
+                try:
+                    trend, plunge = (float(v) for v in item.split("/"))
+                except ValueError:
+                    raise UsageError(f"--directions {item!r}: write trend/plunge, for example 45/10.") from None
+                directions.append(Direction(trend, plunge, args.angle_tolerance, args.bandwidth,
+                                            args.vertical_bandwidth))
+        chosen = args.omni or directions or args.downhole or args.volume
+        dh_lag = args.downhole_lag or (length if length and length > 0 else lag)
+        downhole = LagBins(dh_lag, args.lags) if (args.downhole or not chosen) else None
+        volume = None
+        if args.volume or not chosen:
+            nx, ny, nz = args.volume_cells
+            reach = bins.reach_m
+            volume = VolumeGrid((reach / (nx + 0.5), reach / (ny + 0.5), reach / 2 / (nz + 0.5)), (nx, ny, nz))
+        sets = Sets(omni=bins if (args.omni or not chosen) else None, directions=directions,
+                    directional_bins=bins if directions else None, downhole=downhole, volume=volume,
+                    pairs=args.pairs)
+        step(names[1])
+        index = PairIndex(xyz, hole, depth, max_distance_m=sets.plan().max_distance_m)
+        step(names[2])
+        acc = accumulate(xyz, values, sets, hole=hole, depth=depth, index=index, threads=args.threads)
+        step(names[3])
+        table = variogram_table(acc, args.measure)
+        write_csv(table, out / "variograms.csv")
+        if volume is not None:
+            gamma, counts = acc.volume(0, args.measure)
+            with atomic_path(out / "volume.npz") as temporary:
+                with open(temporary, "wb") as handle:
+                    np.savez_compressed(handle, gamma=gamma, pairs=counts, cell_m=np.asarray(volume.cell_m),
+                                        half_counts=np.asarray(volume.half_counts), measure=args.measure)
+    console.say(f"variograms of {args.value} ({args.measure}): {len(values)} composites, "
+                f"{acc.accepted:,} pairs within {sets.plan().max_distance_m:.1f} m -> {out / 'variograms.csv'}")
+    if unplaced:
+        console.say(f"  {unplaced} composite(s) without a position left out")
+    for name, part in table.groupby("set", sort=False):
+        console.say(f"  {name}: {part['direction'].nunique() if name == 'directional' else 1} set(s), "
+                    f"{len(part)} lag rows, {int(part['pairs'].sum()):,} pairs")
+    if volume is not None:
+        console.say(f"  volume: {2 * volume.half_counts[0] + 1} x {2 * volume.half_counts[1] + 1} x "
+                    f"{2 * volume.half_counts[2] + 1} cells -> {out / 'volume.npz'}")
+    return 0
+
+
 def cmd_demo(args, console: Console) -> int:
     from synthetic_holes import ProgramSpec, generate_program
 
@@ -434,7 +583,8 @@ def cmd_demo(args, console: Console) -> int:
     return 0
 
 
-COMMANDS = {"check": cmd_check, "desurvey": cmd_desurvey, "composite": cmd_composite, "demo": cmd_demo}
+COMMANDS = {"check": cmd_check, "desurvey": cmd_desurvey, "composite": cmd_composite,
+            "variogram": cmd_variogram, "demo": cmd_demo}
 
 
 def main(argv=None) -> int:

@@ -28,9 +28,6 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy.special import ndtri
-from scipy.stats import rankdata
-
 from .errors import UsageError
 from .orientation import vector_from_trend_plunge
 from .pairs import PairIndex
@@ -83,6 +80,27 @@ class Direction:
         across /= np.linalg.norm(across)
         along = np.cross(across, u)
         return np.concatenate([u, across, along])
+
+
+def fan(dip_direction_deg: float, dip_deg: float, count: int, angle_tolerance_deg: float | None = None,
+        bandwidth_m: float = math.inf, vertical_bandwidth_m: float = math.inf) -> list:
+    """``count`` directions evenly spaced over 180 degrees in a plane given by its dip direction and
+    dip (dip 0: a horizontal fan, starting at the strike, dip direction - 90). The default angle
+    tolerance is half the spacing."""
+    from .orientation import trend_plunge
+
+    if count < 1:
+        raise UsageError("a fan needs at least one direction")
+    dd, dip = math.radians(dip_direction_deg), math.radians(dip_deg)
+    strike = np.array([math.sin(dd - math.pi / 2), math.cos(dd - math.pi / 2), 0.0])
+    down_dip = np.array([math.cos(dip) * math.sin(dd), math.cos(dip) * math.cos(dd), -math.sin(dip)])
+    tolerance = 90.0 / count if angle_tolerance_deg is None else angle_tolerance_deg
+    out = []
+    for i in range(count):
+        a = math.pi * i / count
+        trend, plunge = trend_plunge(math.cos(a) * strike + math.sin(a) * down_dip)
+        out.append(Direction(round(trend, 6), round(plunge, 6), tolerance, bandwidth_m, vertical_bandwidth_m))
+    return out
 
 
 @dataclass(frozen=True)
@@ -181,13 +199,29 @@ class Plan:
 
 def normal_scores(values) -> np.ndarray:
     """Normal scores of the finite values (ties share their mean rank); NaN stays NaN."""
+    from scipy.special import ndtri  # imported here: scipy.special costs start-up time
+
     values = np.asarray(values, dtype=np.float64)
     out = np.full(values.shape, np.nan)
     finite = np.isfinite(values)
     n = int(finite.sum())
     if n:
-        out[finite] = ndtri((rankdata(values[finite]) - 0.5) / n)
+        out[finite] = ndtri((_average_ranks(values[finite]) - 0.5) / n)
     return out
+
+
+def _average_ranks(values: np.ndarray) -> np.ndarray:
+    """Ranks 1..n, ties sharing the mean of their ranks."""
+    order = np.argsort(values, kind="stable")
+    sorted_values = values[order]
+    new = np.r_[True, sorted_values[1:] != sorted_values[:-1]]
+    group = np.cumsum(new) - 1
+    starts = np.flatnonzero(new)
+    ends = np.r_[starts[1:], len(values)]
+    mean_rank = 0.5 * (starts + 1 + ends)
+    ranks = np.empty(len(values))
+    ranks[order] = mean_rank[group]
+    return ranks
 
 
 def indicator(values, threshold: float) -> np.ndarray:

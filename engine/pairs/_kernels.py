@@ -27,12 +27,23 @@ COUNT, SUM_D, SUM_H, SUM_T, SUM_H2, SUM_T2, SUM_SQ, SUM_ABS, SUM_HT, SUM_PR = ra
  F_WIDTH) = range(11)
 
 
-@jit
+@jit(inline="always")
 def _bins(d, lag, tol, n, out):
     """Bins k = 0..n with k lag - tol < d <= k lag + tol (bin 0: 0 <= d <= tol). Returns how many
     were written to ``out``."""
     count = 0
     if lag <= 0.0:
+        return 0
+    if tol + tol <= lag:  # bins do not overlap: at most one, found directly
+        k = int(math.ceil((d - tol) / lag))
+        if k > 0 and (k - 1) * lag + tol >= d:  # the division rounded up past an edge
+            k -= 1
+        if k <= n and k * lag - tol < d <= k * lag + tol:
+            out[0] = k
+            return 1
+        if k + 1 <= n and (k + 1) * lag - tol < d <= (k + 1) * lag + tol:  # it rounded down
+            out[0] = k + 1
+            return 1
         return 0
     k = int(math.ceil((d - tol) / lag)) - 1  # one below, in case the division rounded up
     if k < 0:
@@ -45,70 +56,64 @@ def _bins(d, lag, tol, n, out):
     return count
 
 
-@jit
-def _add(acc, slot, vh, vt, d, n_values):
-    """Add one oriented pair (head values vh, tail values vt) at separation d to a bin."""
+@jit(inline="always")
+def _add(acc, slot, values, head, tail, d, n_values):
+    """Add one oriented pair (rows ``head`` and ``tail`` of ``values``) at separation d to a bin."""
+    row = acc[slot]
     for v in range(n_values):
-        h = vh[v]
-        t = vt[v]
+        h = values[head, v]
+        t = values[tail, v]
         if np.isnan(h) or np.isnan(t):
             continue
         base = v * N_STATS
         diff = h - t
-        acc[slot, base + COUNT] += 1.0
-        acc[slot, base + SUM_D] += d
-        acc[slot, base + SUM_H] += h
-        acc[slot, base + SUM_T] += t
-        acc[slot, base + SUM_H2] += h * h
-        acc[slot, base + SUM_T2] += t * t
-        acc[slot, base + SUM_SQ] += diff * diff
-        acc[slot, base + SUM_ABS] += abs(diff)
-        acc[slot, base + SUM_HT] += h * t
+        row[base + COUNT] += 1.0
+        row[base + SUM_D] += d
+        row[base + SUM_H] += h
+        row[base + SUM_T] += t
+        row[base + SUM_H2] += h * h
+        row[base + SUM_T2] += t * t
+        row[base + SUM_SQ] += diff * diff
+        row[base + SUM_ABS] += abs(diff)
+        row[base + SUM_HT] += h * t
         m = 0.5 * (h + t)
         if m != 0.0:
-            acc[slot, base + SUM_PR] += diff * diff / (m * m)
+            row[base + SUM_PR] += diff * diff / (m * m)
     # cross terms of every pair of variables
     k = n_values * N_STATS
     for a in range(n_values):
         for b in range(a + 1, n_values):
-            da = vh[a] - vt[a]
-            db = vh[b] - vt[b]
+            da = values[head, a] - values[tail, a]
+            db = values[head, b] - values[tail, b]
             if not (np.isnan(da) or np.isnan(db)):
-                acc[slot, k] += 1.0
-                acc[slot, k + 1] += da * db
+                row[k] += 1.0
+                row[k + 1] += da * db
             k += 2
 
 
-@jit
-def _pair(acc, i, j, x, y, z, hole, depth, values, layout, params, directions, dir_params, scratch):
-    """Visit one unordered pair of points; add it to every bin of every set it falls in."""
-    dx = x[j] - x[i]
-    dy = y[j] - y[i]
-    dz = z[j] - z[i]
-    d2 = dx * dx + dy * dy + dz * dz
-    if d2 > params[F_MAX2]:
-        return 0
+@jit(inline="always")
+def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, directions, dir_params, scratch):
+    """Add one unordered pair of points within the search distance (separation dx, dy, dz from i to
+    j) to every bin of every set it falls in."""
     same_hole = hole[i] == hole[j]
     mode = layout[L_FILTER]
     if (mode == 1 and same_hole) or (mode == 2 and not same_hole):
         return 0
     d = math.sqrt(d2)
-    # canonical orientation: the head is the lower point (then the more southern, then western)
-    head = j
-    tail = i
-    if dz > 0.0 or (dz == 0.0 and (dy > 0.0 or (dy == 0.0 and dx > 0.0))):
-        head = i
-        tail = j
-        dx = -dx
-        dy = -dy
-        dz = -dz
+    # canonical orientation: the head is the lower point (then the more southern, then western);
+    # written as selects rather than a branch, which would be mispredicted half the time
+    flip = dz > 0.0 or (dz == 0.0 and (dy > 0.0 or (dy == 0.0 and dx > 0.0)))
+    head = i if flip else j
+    tail = j if flip else i
+    sign = -1.0 if flip else 1.0
+    dx *= sign
+    dy *= sign
+    dz *= sign
     n_values = layout[L_N_VALUES]
-    vh = values[head]
-    vt = values[tail]
     # omnidirectional
     n = _bins(d, params[F_OMNI_LAG], params[F_OMNI_TOL], layout[L_OMNI_N], scratch)
     for q in range(n):
-        _add(acc, layout[L_OMNI_SLOT] + scratch[q], vh, vt, d, n_values)
+        _add(acc, layout[L_OMNI_SLOT] + scratch[q], values, head, tail, d, n_values)
     # directional: angle tolerance about u, then bandwidths across (horizontal) and along (vertical)
     # the direction's vertical plane
     n_dir = layout[L_DIR_COUNT]
@@ -129,20 +134,21 @@ def _pair(acc, i, j, x, y, z, hole, depth, values, layout, params, directions, d
         n = _bins(d, params[F_DIR_LAG], params[F_DIR_TOL], layout[L_DIR_N], scratch)
         for q in range(n):
             if c >= 0.0:  # the separation points along u: the canonical head is the head
-                _add(acc, layout[L_DIR_SLOT] + s * width + scratch[q], vh, vt, d, n_values)
+                _add(acc, layout[L_DIR_SLOT] + s * width + scratch[q], values, head, tail, d, n_values)
             else:
-                _add(acc, layout[L_DIR_SLOT] + s * width + scratch[q], vt, vh, d, n_values)
+                _add(acc, layout[L_DIR_SLOT] + s * width + scratch[q], values, tail, head, d, n_values)
     # down the hole: the deeper sample is the head
     if same_hole and layout[L_DH_N] > 0:
         sep = depth[j] - depth[i]
-        if sep >= 0.0:
-            dh_head, dh_tail = values[j], values[i]
-        else:
-            dh_head, dh_tail = values[i], values[j]
+        dh_head = j
+        dh_tail = i
+        if sep < 0.0:
+            dh_head = i
+            dh_tail = j
             sep = -sep
         n = _bins(sep, params[F_DH_LAG], params[F_DH_TOL], layout[L_DH_N], scratch)
         for q in range(n):
-            _add(acc, layout[L_DH_SLOT] + scratch[q], dh_head, dh_tail, sep, n_values)
+            _add(acc, layout[L_DH_SLOT] + scratch[q], values, dh_head, dh_tail, sep, n_values)
     # the variogram volume: lag-vector cells, one half stored (h and -h are the same pair)
     nx = layout[L_VOL_NX]
     if nx >= 0:
@@ -151,17 +157,43 @@ def _pair(acc, i, j, x, y, z, hole, depth, values, layout, params, directions, d
         ix = int(math.floor(dx / params[F_VOL_CX] + 0.5))
         iy = int(math.floor(dy / params[F_VOL_CY] + 0.5))
         iz = int(math.floor(dz / params[F_VOL_CZ] + 0.5))
-        vol_head = vh
-        vol_tail = vt
+        vol_head = head
+        vol_tail = tail
         if iz > 0 or (iz == 0 and (iy > 0 or (iy == 0 and ix > 0))):
             ix = -ix
             iy = -iy
             iz = -iz
-            vol_head = vt
-            vol_tail = vh
+            vol_head = tail
+            vol_tail = head
         if abs(ix) <= nx and abs(iy) <= ny and -iz <= nz:
             cell = ((-iz) * (2 * ny + 1) + (iy + ny)) * (2 * nx + 1) + (ix + nx)
-            _add(acc, layout[L_VOL_SLOT] + cell, vol_head, vol_tail, d, n_values)
+            _add(acc, layout[L_VOL_SLOT] + cell, values, vol_head, vol_tail, d, n_values)
+    return 1
+
+
+@jit(inline="always")
+def _pair_omni(acc, i, j, dx, dy, dz, d2, hole, values, layout, params):
+    """_pair for an omnidirectional set alone with bins that do not overlap: same result."""
+    same_hole = hole[i] == hole[j]
+    mode = layout[L_FILTER]
+    if (mode == 1 and same_hole) or (mode == 2 and not same_hole):
+        return 0
+    d = math.sqrt(d2)
+    flip = dz > 0.0 or (dz == 0.0 and (dy > 0.0 or (dy == 0.0 and dx > 0.0)))
+    head = i if flip else j
+    tail = j if flip else i
+    lag = params[F_OMNI_LAG]
+    tol = params[F_OMNI_TOL]
+    n = layout[L_OMNI_N]
+    k = int(math.ceil((d - tol) / lag))
+    if k > 0 and (k - 1) * lag + tol >= d:
+        k -= 1
+    if not (k * lag - tol < d <= k * lag + tol):
+        k += 1
+        if not (k * lag - tol < d <= k * lag + tol):
+            return 1
+    if k <= n:
+        _add(acc, layout[L_OMNI_SLOT] + k, values, head, tail, d, layout[L_N_VALUES])
     return 1
 
 
@@ -180,6 +212,10 @@ def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout
     candidates = np.zeros(n_threads, dtype=np.int64)
     accepted = np.zeros(n_threads, dtype=np.int64)
     n_tasks = tasks.shape[0]
+    max2 = params[F_MAX2]
+    # the common omnidirectional-only pass with tiling bins takes a shorter path
+    omni_only = (layout[L_DIR_COUNT] == 0 and layout[L_DH_N] < 0 and layout[L_VOL_NX] < 0
+                 and layout[L_OMNI_N] >= 0 and 2.0 * params[F_OMNI_TOL] <= params[F_OMNI_LAG])
     for t in numba.prange(n_threads):
         scratch = np.empty(64, dtype=np.int64)
         local = acc[t]
@@ -194,10 +230,21 @@ def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout
             b1 = cell_start[b + 1]
             for i in range(a0, a1):
                 j0 = i + 1 if a == b else b0
+                xi = x[i]
+                yi = y[i]
+                zi = z[i]
+                cand += b1 - j0
                 for j in range(j0, b1):
-                    cand += 1
-                    inside += _pair(local, i, j, x, y, z, hole, depth, values, layout, params, directions,
-                                    dir_params, scratch)
+                    dx = x[j] - xi
+                    dy = y[j] - yi
+                    dz = z[j] - zi
+                    d2 = dx * dx + dy * dy + dz * dz
+                    if d2 <= max2:
+                        if omni_only:
+                            inside += _pair_omni(local, i, j, dx, dy, dz, d2, hole, values, layout, params)
+                        else:
+                            inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
+                                            directions, dir_params, scratch)
         candidates[t] = cand
         accepted[t] = inside
     total = np.zeros((n_slots, n_columns))
@@ -213,14 +260,23 @@ def brute_force_pass(n_threads, x, y, z, hole, depth, values, layout, params, di
     n = x.shape[0]
     acc = np.zeros((n_threads, n_slots, n_columns))
     accepted = np.zeros(n_threads, dtype=np.int64)
+    max2 = params[F_MAX2]
     for t in numba.prange(n_threads):
         scratch = np.empty(64, dtype=np.int64)
         local = acc[t]
         inside = 0
         for i in range(t, n, n_threads):
+            xi = x[i]
+            yi = y[i]
+            zi = z[i]
             for j in range(i + 1, n):
-                inside += _pair(local, i, j, x, y, z, hole, depth, values, layout, params, directions,
-                                dir_params, scratch)
+                dx = x[j] - xi
+                dy = y[j] - yi
+                dz = z[j] - zi
+                d2 = dx * dx + dy * dy + dz * dz
+                if d2 <= max2:
+                    inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
+                                    directions, dir_params, scratch)
         accepted[t] = inside
     total = np.zeros((n_slots, n_columns))
     for t in range(n_threads):

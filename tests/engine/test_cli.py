@@ -79,7 +79,7 @@ def test_desurvey_methods(write_tables, tmp_path, capsys, method):
     assert code == 0
 
 
-@pytest.mark.parametrize("command", ["check", "desurvey", "composite", "demo"])
+@pytest.mark.parametrize("command", ["check", "desurvey", "composite", "variogram", "demo"])
 def test_help_of_each_command(command, capsys):
     with pytest.raises(SystemExit) as info:
         main([command, "--help"])
@@ -236,3 +236,33 @@ def test_composite_end_to_end_on_a_synthetic_program(tmp_path, capsys):
     code, _, err = run(["composite", *table_args(paths), "--length", "2", "--density", "density",
                         "--out", tmp_path / "e"], capsys)
     assert code == 1 and "--density-default" in err
+
+
+def test_variogram_command(tmp_path, capsys):
+    rng = np.random.default_rng(3)
+    n = 600
+    frame = pd.DataFrame({"hole": np.repeat([f"H{i}" for i in range(20)], 30),
+                          "from": np.tile(np.arange(30) * 2.0, 20), "to": np.tile(np.arange(30) * 2.0 + 2, 20),
+                          "x": np.repeat(rng.uniform(0, 200, 20), 30), "y": np.repeat(rng.uniform(0, 200, 20), 30),
+                          "z": -np.tile(np.arange(30) * 2.0 + 1, 20), "au": rng.lognormal(size=n),
+                          "domain": np.where(rng.uniform(size=n) < 0.7, "FRESH", "OXIDE")})
+    path = tmp_path / "composites.csv"
+    frame.to_csv(path, index=False)
+    code, out, err = run(["variogram", "--composites", path, "--value", "au", "--out", tmp_path / "v",
+                          "--lag", "10", "--lags", "8", "--domain", "domain=FRESH"], capsys)
+    assert code == 0, err
+    table = pd.read_csv(tmp_path / "v" / "variograms.csv")
+    assert list(table.columns[:8]) == ["set", "direction", "trend", "plunge", "lag", "distance", "pairs", "gamma"]
+    assert set(table["set"]) == {"omni", "downhole"}  # with no set named: omni, down-hole and the volume
+    volume = np.load(tmp_path / "v" / "volume.npz")
+    assert volume["gamma"].shape == (21, 41, 41)
+    code, _, _ = run(["variogram", "--composites", path, "--value", "au", "--out", tmp_path / "w", "--lag", "10",
+                      "--directions", "0/0,90/0", "--transform", "normal-score", "--threads", "1"], capsys)
+    assert code == 0
+    table = pd.read_csv(tmp_path / "w" / "variograms.csv")
+    assert set(table["direction"]) == {"0/0", "90/0"}
+    code, _, err = run(["variogram", "--composites", path, "--value", "cu", "--out", tmp_path / "x"], capsys)
+    assert code == 1 and "'cu'" in err
+    code, _, err = run(["variogram", "--composites", path, "--value", "au", "--directions", "north",
+                        "--out", tmp_path / "y"], capsys)
+    assert code == 2 and "trend/plunge" in err
