@@ -171,32 +171,6 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
     return 1
 
 
-@jit(inline="always")
-def _pair_omni(acc, i, j, dx, dy, dz, d2, hole, values, layout, params):
-    """_pair for an omnidirectional set alone with bins that do not overlap: same result."""
-    same_hole = hole[i] == hole[j]
-    mode = layout[L_FILTER]
-    if (mode == 1 and same_hole) or (mode == 2 and not same_hole):
-        return 0
-    d = math.sqrt(d2)
-    flip = dz > 0.0 or (dz == 0.0 and (dy > 0.0 or (dy == 0.0 and dx > 0.0)))
-    head = i if flip else j
-    tail = j if flip else i
-    lag = params[F_OMNI_LAG]
-    tol = params[F_OMNI_TOL]
-    n = layout[L_OMNI_N]
-    k = int(math.ceil((d - tol) / lag))
-    if k > 0 and (k - 1) * lag + tol >= d:
-        k -= 1
-    if not (k * lag - tol < d <= k * lag + tol):
-        k += 1
-        if not (k * lag - tol < d <= k * lag + tol):
-            return 1
-    if k <= n:
-        _add(acc, layout[L_OMNI_SLOT] + k, values, head, tail, d, layout[L_N_VALUES])
-    return 1
-
-
 @jit_parallel
 def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout, params, directions,
               dir_params, n_slots, n_columns):
@@ -213,9 +187,6 @@ def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout
     accepted = np.zeros(n_threads, dtype=np.int64)
     n_tasks = tasks.shape[0]
     max2 = params[F_MAX2]
-    # the common omnidirectional-only pass with tiling bins takes a shorter path
-    omni_only = (layout[L_DIR_COUNT] == 0 and layout[L_DH_N] < 0 and layout[L_VOL_NX] < 0
-                 and layout[L_OMNI_N] >= 0 and 2.0 * params[F_OMNI_TOL] <= params[F_OMNI_LAG])
     for t in numba.prange(n_threads):
         scratch = np.empty(64, dtype=np.int64)
         local = acc[t]
@@ -240,11 +211,8 @@ def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout
                     dz = z[j] - zi
                     d2 = dx * dx + dy * dy + dz * dz
                     if d2 <= max2:
-                        if omni_only:
-                            inside += _pair_omni(local, i, j, dx, dy, dz, d2, hole, values, layout, params)
-                        else:
-                            inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
-                                            directions, dir_params, scratch)
+                        inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
+                                        directions, dir_params, scratch)
         candidates[t] = cand
         accepted[t] = inside
     total = np.zeros((n_slots, n_columns))
