@@ -184,6 +184,9 @@ def build_parser() -> argparse.ArgumentParser:
     sets = p.add_argument_group("sets (none named: omnidirectional, down-hole and the volume)")
     sets.add_argument("--omni", action="store_true", help="the omnidirectional variogram")
     sets.add_argument("--directions", metavar="T/P,...", help="directions as trend/plunge, comma separated")
+    sets.add_argument("--fan", action="append", default=[], metavar="DIPDIR/DIP/N",
+                      help="N directions evenly spaced in a plane of that dip direction and dip (0/0/18: a "
+                           "horizontal fan every 10 degrees); repeatable")
     sets.add_argument("--angle-tolerance", type=float, default=22.5, metavar="DEG",
                       help="half-angle of the directional cone (default 22.5)")
     sets.add_argument("--bandwidth", type=float, default=math.inf, metavar="M",
@@ -473,7 +476,7 @@ def cmd_variogram(args, console: Console) -> int:
 
     from .outputs import atomic_path, write_csv
     from .pairs import PairIndex
-    from .variogram import (Direction, LagBins, Sets, VolumeGrid, accumulate, indicator, normal_scores,
+    from .variogram import (Direction, LagBins, Sets, VolumeGrid, accumulate, fan, indicator, normal_scores,
                             variogram_table)
 
     out = _out_dir(args.out)
@@ -505,6 +508,13 @@ def cmd_variogram(args, console: Console) -> int:
                     raise UsageError(f"--directions {item!r}: write trend/plunge, for example 45/10.") from None
                 directions.append(Direction(trend, plunge, args.angle_tolerance, args.bandwidth,
                                             args.vertical_bandwidth))
+        for item in args.fan:
+            try:
+                dip_direction, dip, count = item.split("/")
+                directions += fan(float(dip_direction), float(dip), int(count), None, args.bandwidth,
+                                  args.vertical_bandwidth)
+            except ValueError:
+                raise UsageError(f"--fan {item!r}: write DIPDIR/DIP/N, for example 0/0/18.") from None
         chosen = args.omni or directions or args.downhole or args.volume
         dh_lag = args.downhole_lag or (length if length and length > 0 else lag)
         downhole = LagBins(dh_lag, args.lags) if (args.downhole or not chosen) else None

@@ -320,6 +320,33 @@ class Accumulation:
         return values, full[..., k.COUNT]
 
 
+def bin_slot(plan: Plan, set_name: str, lag_index: int, direction: int = 0) -> int:
+    """The accumulator slot of lag bin ``lag_index`` (1..N) of a line set ("omni", "directional",
+    "downhole"); ``direction`` numbers the directional sets from 0."""
+    sets = plan.sets
+    if set_name == "omni" and sets.omni is not None and 0 <= lag_index <= sets.omni.count:
+        return int(plan.layout[k.L_OMNI_SLOT] + lag_index)
+    if set_name == "directional" and sets.directions and 0 <= direction < len(sets.directions) \
+            and 0 <= lag_index <= plan.directional_bins.count:
+        return int(plan.layout[k.L_DIR_SLOT] + direction * (plan.directional_bins.count + 1) + lag_index)
+    if set_name == "downhole" and sets.downhole is not None and 0 <= lag_index <= sets.downhole.count:
+        return int(plan.layout[k.L_DH_SLOT] + lag_index)
+    raise UsageError(f"no bin {lag_index} of set {set_name!r} (direction {direction}) in these sets")
+
+
+def bin_pairs(xyz, values, sets: Sets, set_name: str, lag_index: int, direction: int = 0, max_pairs: int = 5000,
+              hole=None, depth=None, index: PairIndex | None = None) -> dict:
+    """The pairs of one bin, for the scene and for h-scatterplots: arrays ``i, j`` (point numbers),
+    ``head, tail`` (values) and ``distance``; at most about ``max_pairs``, chosen by a fixed hash."""
+    plan = sets.plan()
+    if index is None:
+        index = PairIndex(xyz, hole, depth, max_distance_m=plan.max_distance_m)
+    slot = bin_slot(plan, set_name, lag_index, direction)
+    expected = accumulate(xyz, values, sets, hole=hole, depth=depth, index=index).sums[slot, k.COUNT]
+    i, j, head, tail, d = index.pair_list(values, plan, slot, expected, max_pairs)
+    return {"i": i, "j": j, "head": head, "tail": tail, "distance": d, "pairs_in_bin": int(expected)}
+
+
 def accumulate(xyz, values, sets: Sets, hole=None, depth=None, index: PairIndex | None = None,
                threads: int | None = None, brute_force: bool = False) -> Accumulation:
     """One pass over every pair: fill the bins of ``sets`` for every column of ``values``."""

@@ -112,6 +112,23 @@ class PairIndex:
             raise UsageError(f"{len(values)} values for {self.point_count} points")
         return np.ascontiguousarray(values[self.order])
 
+    def pair_list(self, values, plan, slot: int, expected_pairs: float, max_pairs: int = 5000):
+        """The pairs of one bin: ``(i, j)`` in the caller's point numbering, head and tail values of
+        the first variable and the separation. When the bin holds more than ``max_pairs`` (as
+        ``expected_pairs`` says), a fixed hash of each pair chooses about ``max_pairs`` of them: the
+        same pairs every time, for any thread count."""
+        v = self.sorted_values(values)[:, :1]
+        layout = plan.layout.copy()
+        layout[kernels.L_N_VALUES] = 1
+        params = plan.params.copy()
+        params[kernels.F_MAX2] = plan.max_distance_m ** 2
+        share = 1.0 if expected_pairs <= max_pairs else max_pairs / expected_pairs
+        keep_below = min(int(share * 2**32) + 1, 2**32)
+        i, j, head, tail, d, kept = kernels.pair_list_pass(
+            self.tasks, self.cell_start, self.x, self.y, self.z, self.hole, self.depth, v, layout, params,
+            plan.directions, plan.dir_params, plan.n_slots, kernels.N_STATS, slot, keep_below, max_pairs)
+        return self.order[i[:kept]], self.order[j[:kept]], head[:kept], tail[:kept], d[:kept]
+
     def run(self, values, plan, threads: int | None = None, brute_force: bool = False):
         """Accumulate the bins of ``plan`` (see engine.variogram.Plan) over every pair.
 

@@ -250,3 +250,59 @@ def brute_force_pass(n_threads, x, y, z, hole, depth, values, layout, params, di
     for t in range(n_threads):
         total += acc[t]
     return total, accepted.sum()
+
+
+@jit
+def _mix(i, j):
+    """A fixed hash of a pair of indices to [0, 2^32): the deterministic choice of sampled pairs."""
+    h = (i * 0x9E3779B1 + j * 0x85EBCA77) & 0xFFFFFFFF
+    h ^= h >> 15
+    h = (h * 0x2C1B3C6D) & 0xFFFFFFFF
+    h ^= h >> 12
+    h = (h * 0x297A2D39) & 0xFFFFFFFF
+    h ^= h >> 15
+    return h
+
+
+@jit
+def pair_list_pass(tasks, cell_start, x, y, z, hole, depth, values, layout, params, directions, dir_params,
+                   n_slots, n_columns, target, keep_below, max_out):
+    """The pairs that fall in one bin (slot ``target``), found by the very code that fills the bins:
+    a pair belongs to the bin when adding it changes the bin's count. Pairs whose hash is below
+    ``keep_below`` are kept, up to ``max_out``. Returns (i, j, head value, tail value, separation,
+    number kept)."""
+    acc = np.zeros((n_slots, n_columns))
+    scratch = np.empty(64, dtype=np.int64)
+    out_i = np.empty(max_out, dtype=np.int64)
+    out_j = np.empty(max_out, dtype=np.int64)
+    out_h = np.empty(max_out)
+    out_t = np.empty(max_out)
+    out_d = np.empty(max_out)
+    kept = 0
+    max2 = params[F_MAX2]
+    for k in range(tasks.shape[0]):
+        a = tasks[k, 0]
+        b = tasks[k, 1]
+        for i in range(cell_start[a], cell_start[a + 1]):
+            j0 = i + 1 if a == b else cell_start[b]
+            for j in range(j0, cell_start[b + 1]):
+                dx = x[j] - x[i]
+                dy = y[j] - y[i]
+                dz = z[j] - z[i]
+                d2 = dx * dx + dy * dy + dz * dz
+                if d2 > max2:
+                    continue
+                before = acc[target, COUNT]
+                sum_h = acc[target, SUM_H]
+                sum_t = acc[target, SUM_T]
+                sum_d = acc[target, SUM_D]
+                _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, directions, dir_params,
+                      scratch)
+                if acc[target, COUNT] != before and kept < max_out and _mix(min(i, j), max(i, j)) < keep_below:
+                    out_i[kept] = i
+                    out_j[kept] = j
+                    out_h[kept] = acc[target, SUM_H] - sum_h
+                    out_t[kept] = acc[target, SUM_T] - sum_t
+                    out_d[kept] = acc[target, SUM_D] - sum_d
+                    kept += 1
+    return out_i, out_j, out_h, out_t, out_d, kept

@@ -261,6 +261,12 @@ def test_variogram_command(tmp_path, capsys):
     assert code == 0
     table = pd.read_csv(tmp_path / "w" / "variograms.csv")
     assert set(table["direction"]) == {"0/0", "90/0"}
+    code, _, err = run(["variogram", "--composites", path, "--value", "au", "--out", tmp_path / "f", "--lag", "10",
+                        "--fan", "0/0/6", "--fan", "90/90/3"], capsys)
+    assert code == 0, err
+    fans = pd.read_csv(tmp_path / "f" / "variograms.csv")
+    assert len(fans) == 9 * 10  # 6 + 3 directions of 10 lags (both fans hold the line 0/0)
+    assert sorted(fans[fans.plunge == 0]["trend"].unique().tolist())[:3] == [0.0, 30.0, 60.0]
     code, _, err = run(["variogram", "--composites", path, "--value", "cu", "--out", tmp_path / "x"], capsys)
     assert code == 1 and "'cu'" in err
     code, _, err = run(["variogram", "--composites", path, "--value", "au", "--directions", "north",

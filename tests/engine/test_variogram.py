@@ -308,3 +308,29 @@ def test_index_is_reused_across_variables_and_sets():
     assert a.accepted == b.accepted
     with pytest.raises(Exception):
         accumulate(xyz, np.zeros(2000), Sets(omni=LagBins(10, 10)), index=index)  # reaches beyond 60 m
+
+
+def test_pair_list_of_a_bin_equals_the_double_loop_and_samples_fixed_pairs():
+    from engine.variogram import bin_pairs
+
+    rng = np.random.default_rng(12)
+    xyz, hole, depth, values = holes_program(rng)
+    values = np.nan_to_num(values, nan=1.0)
+    sets = Sets(omni=LagBins(4.0, 8), directions=[Direction(45, 10, 30, bandwidth_m=6)],
+                directional_bins=LagBins(5.0, 6))
+    every = bin_pairs(xyz, values, sets, "omni", 3, max_pairs=100000, hole=hole, depth=depth)
+    d = np.linalg.norm(xyz[:, None] - xyz[None], axis=2)
+    ii, jj = np.nonzero(np.triu((d > 10.0) & (d <= 14.0), 1))  # bin 3: 12 - 2 < d <= 12 + 2
+    assert sorted(zip(np.minimum(every["i"], every["j"]), np.maximum(every["i"], every["j"]))) == sorted(zip(ii, jj))
+    assert every["pairs_in_bin"] == len(ii)
+    # the values returned are those of the two ends, head first
+    assert np.allclose(np.sort(np.c_[every["head"], every["tail"]], axis=1),
+                       np.sort(np.c_[values[every["i"]], values[every["j"]]], axis=1))
+    some = bin_pairs(xyz, values, sets, "omni", 3, max_pairs=50, hole=hole, depth=depth)
+    again = bin_pairs(xyz, values, sets, "omni", 3, max_pairs=50, hole=hole, depth=depth)
+    assert 0 < len(some["i"]) <= 50 and np.array_equal(some["i"], again["i"])
+    directional = bin_pairs(xyz, values, sets, "directional", 2, direction=0, hole=hole, depth=depth)
+    acc = accumulate(xyz, values, sets, hole=hole, depth=depth)
+    row = variogram_table(acc).query("set == 'directional' and lag == 10")
+    assert len(directional["i"]) == row["pairs"].iloc[0]
+    assert np.mean((directional["head"] - directional["tail"]) ** 2) / 2 == pytest.approx(row["gamma"].iloc[0])
