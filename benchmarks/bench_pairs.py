@@ -149,9 +149,9 @@ def main():
     if args.skip_full:
         return
 
-    full = Sets(omni=LagBins(10.0, 15), downhole=LagBins(2.0, 40),
+    full = Sets(omni=LagBins(10.0, 15), downhole=LagBins(2.0, 40),  # 150 m of lags; the volume's corners are cut
                 directions=fan(0, 0, 18) + fan(90, 90, 18) + fan(0, 90, 18), directional_bins=LagBins(10.0, 15),
-                volume=VolumeGrid((150 / 20.5, 150 / 20.5, 75 / 10.5), (20, 20, 10)))
+                volume=VolumeGrid((150 / 20.5, 150 / 20.5, 75 / 10.5), (20, 20, 10)), max_distance_m=155.0)
     plan = full.plan()
     t0 = time.perf_counter()
     index = PairIndex(xyz, hole, depth, max_distance_m=plan.max_distance_m)

@@ -523,9 +523,10 @@ def cmd_variogram(args, console: Console) -> int:
             nx, ny, nz = args.volume_cells
             reach = bins.reach_m
             volume = VolumeGrid((reach / (nx + 0.5), reach / (ny + 0.5), reach / 2 / (nz + 0.5)), (nx, ny, nz))
+        line_reach = max([b.reach_m for b in (bins, downhole) if b is not None])
         sets = Sets(omni=bins if (args.omni or not chosen) else None, directions=directions,
                     directional_bins=bins if directions else None, downhole=downhole, volume=volume,
-                    pairs=args.pairs)
+                    pairs=args.pairs, max_distance_m=line_reach if volume is not None else None)
         step(names[1])
         index = PairIndex(xyz, hole, depth, max_distance_m=sets.plan().max_distance_m)
         step(names[2])

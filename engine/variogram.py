@@ -131,6 +131,7 @@ class Sets:
     downhole: LagBins | None = None
     volume: VolumeGrid | None = None
     pairs: str = "all"
+    max_distance_m: float | None = None  # a cap on the search: volume cells beyond it hold no pairs
 
     def plan(self) -> "Plan":
         return Plan(self)
@@ -190,6 +191,12 @@ class Plan:
         self.params = params
         self.n_slots = max(slot, 1)
         self.max_distance_m = max(reach)
+        if sets.max_distance_m is not None:
+            line_reach = max(reach[:-1]) if sets.volume is not None else self.max_distance_m
+            if sets.max_distance_m < line_reach:
+                raise UsageError(f"the search cap {sets.max_distance_m:g} m is shorter than the lag bins' reach "
+                                 f"{line_reach:g} m")
+            self.max_distance_m = min(self.max_distance_m, float(sets.max_distance_m))
 
 
 # --------------------------------------------------------------------------------------------

@@ -334,3 +334,21 @@ def test_pair_list_of_a_bin_equals_the_double_loop_and_samples_fixed_pairs():
     row = variogram_table(acc).query("set == 'directional' and lag == 10")
     assert len(directional["i"]) == row["pairs"].iloc[0]
     assert np.mean((directional["head"] - directional["tail"]) ** 2) / 2 == pytest.approx(row["gamma"].iloc[0])
+
+
+def test_search_cap_empties_volume_corners_only():
+    rng = np.random.default_rng(13)
+    xyz = rng.uniform(0, 60, (1500, 3))
+    z = rng.normal(size=1500)
+    volume = VolumeGrid((5.0, 5.0, 5.0), (4, 4, 4))
+    full = accumulate(xyz, z, Sets(omni=LagBins(5.0, 4), volume=volume))
+    capped = accumulate(xyz, z, Sets(omni=LagBins(5.0, 4), volume=volume, max_distance_m=22.5))
+    # the lag bins do not change (sums in another order: round-off)
+    assert np.array_equal(full.stats(0)[:5, k.COUNT], capped.stats(0)[:5, k.COUNT])
+    assert np.allclose(full.stats(0)[:5], capped.stats(0)[:5], rtol=1e-12)
+    _, counts_full = full.volume(0)
+    _, counts_capped = capped.volume(0)
+    assert counts_capped.sum() < counts_full.sum()
+    assert counts_capped[4, 4, 4 + 2] == counts_full[4, 4, 4 + 2]  # cells near zero keep every pair
+    with pytest.raises(Exception):
+        Sets(omni=LagBins(5.0, 4), max_distance_m=10.0).plan()
