@@ -1,4 +1,6 @@
 from .cli import main
-import sys
 
-sys.exit(main())
+if __name__ == "__main__":
+    import sys
+
+    sys.exit(main())
