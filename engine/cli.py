@@ -209,6 +209,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--pairs", choices=("all", "across-holes", "same-hole"), default="all",
                    help="which pairs to use (default: all)")
     p.add_argument("--threads", type=int, metavar="N", help="worker threads (default: all cores)")
+    p.add_argument("--dask", metavar="ADDRESS", help="run the pair work on a Dask cluster: tcp://host:port, or "
+                   "local:N for N local worker processes")
     _common_options(p)
 
     p = commands.add_parser("demo", help="run the workflow on a built-in synthetic drill program",
@@ -530,7 +532,8 @@ def cmd_variogram(args, console: Console) -> int:
         step(names[1])
         index = PairIndex(xyz, hole, depth, max_distance_m=sets.plan().max_distance_m)
         step(names[2])
-        acc = accumulate(xyz, values, sets, hole=hole, depth=depth, index=index, threads=args.threads)
+        acc = accumulate(xyz, values, sets, hole=hole, depth=depth, index=index, threads=args.threads,
+                         dask=args.dask)
         step(names[3])
         table = variogram_table(acc, args.measure)
         write_csv(table, out / "variograms.csv")

@@ -355,13 +355,19 @@ def bin_pairs(xyz, values, sets: Sets, set_name: str, lag_index: int, direction:
 
 
 def accumulate(xyz, values, sets: Sets, hole=None, depth=None, index: PairIndex | None = None,
-               threads: int | None = None, brute_force: bool = False) -> Accumulation:
-    """One pass over every pair: fill the bins of ``sets`` for every column of ``values``."""
+               threads: int | None = None, brute_force: bool = False, dask: str | None = None) -> Accumulation:
+    """One pass over every pair: fill the bins of ``sets`` for every column of ``values``. With
+    ``dask`` (a scheduler address or ``local:N``) the pass runs on a Dask cluster."""
     plan = sets.plan()
     if index is None:
         index = PairIndex(xyz, hole, depth, max_distance_m=plan.max_distance_m)
     values = np.asarray(values, dtype=np.float64)
     n_values = 1 if values.ndim == 1 else values.shape[1]
+    if dask:
+        from .distributed import run_on_dask
+
+        sums, candidates, accepted = run_on_dask(index, values, plan, dask)
+        return Accumulation(sums, plan, n_values, candidates, accepted)
     sums, candidates, accepted = index.run(values, plan, threads=threads, brute_force=brute_force)
     return Accumulation(sums, plan, n_values, candidates, accepted)
 

@@ -267,6 +267,13 @@ def test_variogram_command(tmp_path, capsys):
     fans = pd.read_csv(tmp_path / "f" / "variograms.csv")
     assert len(fans) == 9 * 10  # 6 + 3 directions of 10 lags (both fans hold the line 0/0)
     assert sorted(fans[fans.plunge == 0]["trend"].unique().tolist())[:3] == [0.0, 30.0, 60.0]
+    pytest.importorskip("distributed")
+    code, _, err = run(["variogram", "--composites", path, "--value", "au", "--out", tmp_path / "dask", "--lag", "10",
+                        "--directions", "0/0,90/0", "--transform", "normal-score", "--dask", "local:2"], capsys)
+    assert code == 0, err
+    on_dask = pd.read_csv(tmp_path / "dask" / "variograms.csv")
+    assert on_dask["pairs"].tolist() == table["pairs"].tolist()
+    assert np.allclose(on_dask["gamma"], table["gamma"], rtol=1e-9, equal_nan=True)
     code, _, err = run(["variogram", "--composites", path, "--value", "cu", "--out", tmp_path / "x"], capsys)
     assert code == 1 and "'cu'" in err
     code, _, err = run(["variogram", "--composites", path, "--value", "au", "--directions", "north",

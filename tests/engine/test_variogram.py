@@ -352,3 +352,14 @@ def test_search_cap_empties_volume_corners_only():
     assert counts_capped[4, 4, 4 + 2] == counts_full[4, 4, 4 + 2]  # cells near zero keep every pair
     with pytest.raises(Exception):
         Sets(omni=LagBins(5.0, 4), max_distance_m=10.0).plan()
+
+
+def test_dask_backend_equals_the_local_run():
+    pytest.importorskip("distributed")
+    rng = np.random.default_rng(14)
+    xyz, hole, depth, values = holes_program(rng, n_holes=12)
+    local = accumulate(xyz, values, ALL_SETS, hole=hole, depth=depth)
+    remote = accumulate(xyz, values, ALL_SETS, hole=hole, depth=depth, dask="local:2")
+    assert np.array_equal(local.sums[:, k.COUNT], remote.sums[:, k.COUNT])
+    assert np.allclose(local.sums, remote.sums, rtol=1e-9, atol=1e-9)
+    assert local.accepted == remote.accepted
