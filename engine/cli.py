@@ -112,6 +112,14 @@ def _common_options(parser: argparse.ArgumentParser, out_default=None):
     parser.add_argument("--quiet", action="store_true", help="print nothing but errors")
 
 
+def _computing_options(parser: argparse.ArgumentParser):
+    """Options of the commands that desurvey and compute from the tables."""
+    parser.add_argument("--method", choices=("minimum-curvature", "balanced-tangential", "tangential"),
+                        default="minimum-curvature", help="desurvey method (default: minimum-curvature)")
+    parser.add_argument("--skip-bad-rows", action="store_true",
+                        help="leave out rows with errors (listed in rejected.csv) instead of refusing to run")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="drillaxis", description=DESCRIPTION)
     from . import __version__
@@ -131,11 +139,8 @@ def build_parser() -> argparse.ArgumentParser:
                             description="Desurvey the holes: traces.csv (stations and every --step "
                                         "metres) and samples.csv (each interval's mid-point).")
     _table_options(p)
-    p.add_argument("--method", choices=("minimum-curvature", "balanced-tangential", "tangential"),
-                   default="minimum-curvature", help="desurvey method (default: minimum-curvature)")
+    _computing_options(p)
     p.add_argument("--step", type=float, default=1.0, metavar="M", help="trace spacing in metres (default 1)")
-    p.add_argument("--skip-bad-rows", action="store_true",
-                   help="leave out rows with errors (listed in rejected.csv) instead of refusing to run")
     _common_options(p)
 
     p = commands.add_parser("composite", help="composite samples to a common length, keeping metal",
@@ -163,10 +168,7 @@ def build_parser() -> argparse.ArgumentParser:
                        help="an elevation on a bench boundary (default 0)")
     shape.add_argument("--cap", action="append", default=[], metavar="COLUMN=VALUE",
                        help="cap a value column before compositing; repeatable")
-    p.add_argument("--method", choices=("minimum-curvature", "balanced-tangential", "tangential"),
-                   default="minimum-curvature", help="desurvey method (default: minimum-curvature)")
-    p.add_argument("--skip-bad-rows", action="store_true",
-                   help="leave out rows with errors (listed in rejected.csv) instead of refusing to run")
+    _computing_options(p)
     _common_options(p)
 
     p = commands.add_parser("variogram", help="experimental variograms from composites",

@@ -171,6 +171,24 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
     return 1
 
 
+@jit(inline="always")
+def _visit(acc, i, j0, j1, x, y, z, max2, hole, depth, values, layout, params, directions, dir_params, scratch):
+    """Pair point i with points j0..j1-1; returns how many were within the search distance."""
+    xi = x[i]
+    yi = y[i]
+    zi = z[i]
+    inside = 0
+    for j in range(j0, j1):
+        dx = x[j] - xi
+        dy = y[j] - yi
+        dz = z[j] - zi
+        d2 = dx * dx + dy * dy + dz * dz
+        if d2 <= max2:
+            inside += _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, directions,
+                            dir_params, scratch)
+    return inside
+
+
 @jit_parallel
 def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout, params, directions,
               dir_params, n_slots, n_columns):
@@ -201,18 +219,9 @@ def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout
             b1 = cell_start[b + 1]
             for i in range(a0, a1):
                 j0 = i + 1 if a == b else b0
-                xi = x[i]
-                yi = y[i]
-                zi = z[i]
                 cand += b1 - j0
-                for j in range(j0, b1):
-                    dx = x[j] - xi
-                    dy = y[j] - yi
-                    dz = z[j] - zi
-                    d2 = dx * dx + dy * dy + dz * dz
-                    if d2 <= max2:
-                        inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
-                                        directions, dir_params, scratch)
+                inside += _visit(local, i, j0, b1, x, y, z, max2, hole, depth, values, layout, params,
+                                 directions, dir_params, scratch)
         candidates[t] = cand
         accepted[t] = inside
     total = np.zeros((n_slots, n_columns))
@@ -234,17 +243,8 @@ def brute_force_pass(n_threads, x, y, z, hole, depth, values, layout, params, di
         local = acc[t]
         inside = 0
         for i in range(t, n, n_threads):
-            xi = x[i]
-            yi = y[i]
-            zi = z[i]
-            for j in range(i + 1, n):
-                dx = x[j] - xi
-                dy = y[j] - yi
-                dz = z[j] - zi
-                d2 = dx * dx + dy * dy + dz * dz
-                if d2 <= max2:
-                    inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
-                                    directions, dir_params, scratch)
+            inside += _visit(local, i, i + 1, n, x, y, z, max2, hole, depth, values, layout, params,
+                             directions, dir_params, scratch)
         accepted[t] = inside
     total = np.zeros((n_slots, n_columns))
     for t in range(n_threads):
