@@ -171,24 +171,6 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
     return 1
 
 
-@jit(inline="always")
-def _visit(acc, i, j0, j1, x, y, z, max2, hole, depth, values, layout, params, directions, dir_params, scratch):
-    """Pair point i with points j0..j1-1; returns how many were within the search distance."""
-    xi = x[i]
-    yi = y[i]
-    zi = z[i]
-    inside = 0
-    for j in range(j0, j1):
-        dx = x[j] - xi
-        dy = y[j] - yi
-        dz = z[j] - zi
-        d2 = dx * dx + dy * dy + dz * dz
-        if d2 <= max2:
-            inside += _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, directions,
-                            dir_params, scratch)
-    return inside
-
-
 @jit_parallel
 def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout, params, directions,
               dir_params, n_slots, n_columns):
@@ -219,9 +201,18 @@ def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout
             b1 = cell_start[b + 1]
             for i in range(a0, a1):
                 j0 = i + 1 if a == b else b0
+                xi = x[i]
+                yi = y[i]
+                zi = z[i]
                 cand += b1 - j0
-                inside += _visit(local, i, j0, b1, x, y, z, max2, hole, depth, values, layout, params,
-                                 directions, dir_params, scratch)
+                for j in range(j0, b1):
+                    dx = x[j] - xi
+                    dy = y[j] - yi
+                    dz = z[j] - zi
+                    d2 = dx * dx + dy * dy + dz * dz
+                    if d2 <= max2:
+                        inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
+                                        directions, dir_params, scratch)
         candidates[t] = cand
         accepted[t] = inside
     total = np.zeros((n_slots, n_columns))
@@ -233,7 +224,10 @@ def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout
 @jit_parallel
 def brute_force_pass(n_threads, x, y, z, hole, depth, values, layout, params, directions, dir_params,
                      n_slots, n_columns):
-    """Every pair of points, no search structure: the compute limit per pair (benchmarks, tests)."""
+    """Every pair of points, no search structure: the compute limit per pair (benchmarks, tests).
+
+    The inner loop is written out here as in ``pair_pass`` on purpose: a shared inlined helper for it
+    measured 5-10% slower on the 200,000-composite benchmark."""
     n = x.shape[0]
     acc = np.zeros((n_threads, n_slots, n_columns))
     accepted = np.zeros(n_threads, dtype=np.int64)
@@ -243,8 +237,17 @@ def brute_force_pass(n_threads, x, y, z, hole, depth, values, layout, params, di
         local = acc[t]
         inside = 0
         for i in range(t, n, n_threads):
-            inside += _visit(local, i, i + 1, n, x, y, z, max2, hole, depth, values, layout, params,
-                             directions, dir_params, scratch)
+            xi = x[i]
+            yi = y[i]
+            zi = z[i]
+            for j in range(i + 1, n):
+                dx = x[j] - xi
+                dy = y[j] - yi
+                dz = z[j] - zi
+                d2 = dx * dx + dy * dy + dz * dz
+                if d2 <= max2:
+                    inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
+                                    directions, dir_params, scratch)
         accepted[t] = inside
     total = np.zeros((n_slots, n_columns))
     for t in range(n_threads):
