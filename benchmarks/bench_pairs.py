@@ -85,7 +85,6 @@ def main():
     parser.add_argument("--skip-full", action="store_true", help="leave out (b)")
     args = parser.parse_args()
     from engine.pairs import PairIndex
-    from engine.pairs import _kernels as k
     from engine.variogram import LagBins, Sets, VolumeGrid, accumulate, fan
 
     rng = np.random.default_rng(0)
@@ -134,7 +133,7 @@ def main():
     sub = np.argsort(np.linalg.norm(xyz - centre, axis=1))[:20000]
     plan = sets.plan()
     sub_index = PairIndex(xyz[sub], max_distance_m=plan.max_distance_m)
-    sub_index.run(values[sub][:2000] if False else values[sub], plan, brute_force=True)  # compile
+    sub_index.run(values[sub], plan, brute_force=True)  # compile
     t0 = time.perf_counter()
     _, brute_candidates, brute_accepted = sub_index.run(values[sub], plan, brute_force=True)
     brute_s = time.perf_counter() - t0

@@ -228,7 +228,7 @@ def build_parser() -> argparse.ArgumentParser:
 # --------------------------------------------------------------------------------------------
 
 
-def _read(args, console=None):
+def _read(args):
     from .tables import parse_column_options, read_tables
 
     categories = list(args.category)

@@ -342,7 +342,6 @@ def composite(intervals: pd.DataFrame, value_columns, options: CompositeOptions,
     run, run_samples, top, bottom = _runs(hole_code, domain_code, d_from, d_to)
     run_first = run_samples[:-1]
     run_hole, run_domain = hole_code[run_first], domain_code[run_first]
-    bench_centre = None
     residual = None
     if options.mode == "length":
         c_from, c_to, c_run, residual = _length_edges(top, bottom, options)

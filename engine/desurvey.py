@@ -347,7 +347,6 @@ class Desurvey:
                                      collar_xyz, _method_code(self.method))
         self.xyz_ = self._table[:, X:Z + 1].copy()
         self.hole_ids_ = holes.to_numpy(dtype=object)
-        self._index = holes
         self.end_depth_ = collars["depth"].to_numpy(dtype=np.float64)
         self.collar_xyz_ = collar_xyz
         return self

@@ -649,7 +649,7 @@ def read_tables(
         raws["intervals"], mappings["intervals"], frames["intervals"], markers, missing_codes,
         below_detection, set(category_columns), findings,
     )
-    _validate(frames, value_columns, dip_convention, findings, {n: r.path for n, r in raws.items()})
+    _validate(frames, dip_convention, findings)
     return DrillTables(
         frames["collars"], frames["surveys"], frames["intervals"], value_columns, category_columns,
         {n: r.path for n, r in raws.items()}, mappings, findings.frame(),
@@ -822,7 +822,7 @@ def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_de
     return value_columns, category_columns
 
 
-def _validate(frames, value_columns, dip_convention, findings: Findings, paths):
+def _validate(frames, dip_convention, findings: Findings):
     collars = _View("collars", frames["collars"], findings)
     surveys = _View("surveys", frames["surveys"], findings)
     intervals = _View("intervals", frames["intervals"], findings)

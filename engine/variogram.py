@@ -151,34 +151,33 @@ class Plan:
         layout[k.L_OMNI_N] = -1
         layout[k.L_DH_N] = -1
         layout[k.L_VOL_NX] = -1
+
+        def place(bins, name, slot_at, count_at, lag_at, tol_at, copies=1):
+            """Lay out ``copies`` sets of these lag bins from the current slot."""
+            nonlocal slot
+            bins.check(name)
+            layout[slot_at], layout[count_at] = slot, bins.count
+            params[lag_at], params[tol_at] = bins.lag_m, bins.tolerance
+            slot += copies * (bins.count + 1)
+            reach.append(bins.reach_m)
+
         if sets.omni is not None:
-            sets.omni.check("omnidirectional bins")
-            layout[k.L_OMNI_SLOT], layout[k.L_OMNI_N] = slot, sets.omni.count
-            params[k.F_OMNI_LAG], params[k.F_OMNI_TOL] = sets.omni.lag_m, sets.omni.tolerance
-            slot += sets.omni.count + 1
-            reach.append(sets.omni.reach_m)
+            place(sets.omni, "omnidirectional bins", k.L_OMNI_SLOT, k.L_OMNI_N, k.F_OMNI_LAG, k.F_OMNI_TOL)
         self.directions = np.zeros((max(1, len(sets.directions)), 9))
         self.dir_params = np.zeros((max(1, len(sets.directions)), 3))
         if sets.directions:
             bins = sets.directional_bins or sets.omni
             if bins is None:
                 raise UsageError("directional sets need lag bins")
-            bins.check("directional bins")
-            layout[k.L_DIR_SLOT], layout[k.L_DIR_COUNT], layout[k.L_DIR_N] = slot, len(sets.directions), bins.count
-            params[k.F_DIR_LAG], params[k.F_DIR_TOL] = bins.lag_m, bins.tolerance
+            layout[k.L_DIR_COUNT] = len(sets.directions)
+            place(bins, "directional bins", k.L_DIR_SLOT, k.L_DIR_N, k.F_DIR_LAG, k.F_DIR_TOL, len(sets.directions))
             for s, d in enumerate(sets.directions):
                 self.directions[s] = d.frame()
                 self.dir_params[s] = [math.cos(math.radians(d.angle_tolerance_deg)), d.bandwidth_m,
                                       d.vertical_bandwidth_m]
-            slot += len(sets.directions) * (bins.count + 1)
-            reach.append(bins.reach_m)
             self.directional_bins = bins
         if sets.downhole is not None:
-            sets.downhole.check("down-hole bins")
-            layout[k.L_DH_SLOT], layout[k.L_DH_N] = slot, sets.downhole.count
-            params[k.F_DH_LAG], params[k.F_DH_TOL] = sets.downhole.lag_m, sets.downhole.tolerance
-            slot += sets.downhole.count + 1
-            reach.append(sets.downhole.reach_m)
+            place(sets.downhole, "down-hole bins", k.L_DH_SLOT, k.L_DH_N, k.F_DH_LAG, k.F_DH_TOL)
         if sets.volume is not None:
             v = sets.volume
             layout[k.L_VOL_SLOT] = slot

@@ -11,7 +11,7 @@ import pytest
 
 from engine.cli import main
 
-from .conftest import GOOD_COLLARS, GOOD_INTERVALS, GOOD_SURVEYS
+from .conftest import GOOD_INTERVALS
 
 ROOT = Path(__file__).resolve().parents[2]
 

@@ -68,7 +68,6 @@ def test_every_set_equals_the_double_loop(pairs):
     sets = Sets(**{**ALL_SETS.__dict__, "pairs": pairs})
     acc = accumulate(xyz, values, sets, hole=hole, depth=depth)
     want = reference_sums(xyz, values, hole, depth, sets)
-    volume_sums, volume_counts = {}, None
     for key, row in want.items():
         if key[0] == "volume":
             continue
