@@ -138,7 +138,7 @@ class Sets:
 
 
 class Plan:
-    """The integer layout, float parameters and direction frames the kernels read."""
+    """The integer layout, float parameters, direction frames and direction lookup the kernels read."""
 
     def __init__(self, sets: Sets):
         if sets.pairs not in ("all", "across-holes", "same-hole"):
@@ -176,6 +176,8 @@ class Plan:
                 self.dir_params[s] = [math.cos(math.radians(d.angle_tolerance_deg)), d.bandwidth_m,
                                       d.vertical_bandwidth_m]
             self.directional_bins = bins
+        self.dir_lookup = k.direction_lookup(self.directions[:len(sets.directions), :3],
+                                             self.dir_params[:len(sets.directions), 0])
         if sets.downhole is not None:
             place(sets.downhole, "down-hole bins", k.L_DH_SLOT, k.L_DH_N, k.F_DH_LAG, k.F_DH_TOL)
         if sets.volume is not None:

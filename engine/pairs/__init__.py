@@ -118,15 +118,13 @@ class PairIndex:
         ``expected_pairs`` says), a fixed hash of each pair chooses about ``max_pairs`` of them: the
         same pairs every time, for any thread count."""
         v = self.sorted_values(values)[:, :1]
-        layout = plan.layout.copy()
-        layout[kernels.L_N_VALUES] = 1
-        params = plan.params.copy()
-        params[kernels.F_MAX2] = plan.max_distance_m ** 2
+        layout, params = kernels.kernel_arguments(plan, 1)
         share = 1.0 if expected_pairs <= max_pairs else max_pairs / expected_pairs
         keep_below = min(int(share * 2**32) + 1, 2**32)
         i, j, head, tail, d, kept = kernels.pair_list_pass(
             self.tasks, self.cell_start, self.x, self.y, self.z, self.hole, self.depth, v, layout, params,
-            plan.directions, plan.dir_params, plan.n_slots, kernels.N_STATS, slot, keep_below, max_pairs)
+            plan.directions, plan.dir_params, plan.dir_lookup, plan.n_slots, kernels.N_STATS, slot, keep_below,
+            max_pairs)
         return self.order[i[:kept]], self.order[j[:kept]], head[:kept], tail[:kept], d[:kept]
 
     def run(self, values, plan, threads: int | None = None, brute_force: bool = False):
@@ -138,19 +136,16 @@ class PairIndex:
             raise UsageError(f"the sets reach {plan.max_distance_m:g} m, beyond the index's search distance "
                              f"{self.max_distance_m:g} m; build the index with a larger distance")
         v = self.sorted_values(values)
-        layout = plan.layout.copy()
-        layout[kernels.L_N_VALUES] = v.shape[1]
+        layout, params = kernels.kernel_arguments(plan, v.shape[1])
         n_columns = kernels.N_STATS * v.shape[1] + v.shape[1] * (v.shape[1] - 1)
-        params = plan.params.copy()
-        params[kernels.F_MAX2] = plan.max_distance_m ** 2
         with numba_threads(threads) as count:
             if brute_force:
                 acc, accepted = kernels.brute_force_pass(
                     count, self.x, self.y, self.z, self.hole, self.depth, v, layout, params, plan.directions,
-                    plan.dir_params, plan.n_slots, n_columns)
+                    plan.dir_params, plan.dir_lookup, plan.n_slots, n_columns)
                 n = self.point_count
                 return acc, n * (n - 1) // 2, int(accepted)
             acc, candidates, accepted = kernels.pair_pass(
                 count, self.tasks, self.cell_start, self.x, self.y, self.z, self.hole, self.depth, v, layout,
-                params, plan.directions, plan.dir_params, plan.n_slots, n_columns)
+                params, plan.directions, plan.dir_params, plan.dir_lookup, plan.n_slots, n_columns)
         return acc, int(candidates), int(accepted)

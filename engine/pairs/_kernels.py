@@ -22,9 +22,22 @@ COUNT, SUM_D, SUM_H, SUM_T, SUM_H2, SUM_T2, SUM_SQ, SUM_ABS, SUM_HT, SUM_PR = ra
 # integer layout of the sets (see engine/pairs/__init__.py, _layout)
 (L_OMNI_SLOT, L_OMNI_N, L_DIR_SLOT, L_DIR_COUNT, L_DIR_N, L_DH_SLOT, L_DH_N, L_VOL_SLOT, L_VOL_NX, L_VOL_NY,
  L_VOL_NZ, L_FILTER, L_N_VALUES, L_WIDTH) = range(14)
-# float parameters
+# float parameters (the inverse lags spare the hot path a division)
 (F_MAX2, F_OMNI_LAG, F_OMNI_TOL, F_DIR_LAG, F_DIR_TOL, F_DH_LAG, F_DH_TOL, F_VOL_CX, F_VOL_CY, F_VOL_CZ,
- F_WIDTH) = range(11)
+ F_OMNI_INV, F_DIR_INV, F_DH_INV, F_WIDTH) = range(14)
+
+
+def kernel_arguments(plan, n_values: int):
+    """The layout and float parameters of a plan as tuples of scalars for the kernels. Tuples, not
+    arrays: numba keeps them in registers, where array reads would be repeated after every store
+    to the accumulators (the compiler cannot rule out that they overlap)."""
+    layout = [int(x) for x in plan.layout]
+    layout[L_N_VALUES] = int(n_values)
+    params = [float(x) for x in plan.params]
+    params[F_MAX2] = float(plan.max_distance_m) ** 2
+    for lag, inv in ((F_OMNI_LAG, F_OMNI_INV), (F_DIR_LAG, F_DIR_INV), (F_DH_LAG, F_DH_INV)):
+        params[inv] = 1.0 / params[lag] if params[lag] > 0 else 0.0
+    return tuple(layout), tuple(params)
 
 
 @jit(inline="always")
@@ -54,6 +67,38 @@ def _bins(d, lag, tol, n, out):
             count += 1
         k += 1
     return count
+
+
+@jit(inline="always")
+def _bin_one(d, lag, inv_lag, tol, n):
+    """The one bin k (0..n) with k lag - tol < d <= k lag + tol when bins do not overlap, or -1.
+    The product with the inverse lag only proposes k; the exact edge tests decide, so a separation
+    on an edge falls in the same bin as in ``_bins`` and the references."""
+    k = int(math.ceil((d - tol) * inv_lag))
+    if k < 0:
+        k = 0
+    if k > 0 and (k - 1) * lag + tol >= d:
+        k -= 1
+    elif k * lag + tol < d:
+        k += 1
+    if k <= n and k * lag - tol < d and d <= k * lag + tol:
+        return k
+    return -1
+
+
+@jit(inline="always")
+def _add_binned(acc, first_slot, sep, lag, inv_lag, tol, n, values, head, tail, d, n_values, scratch):
+    """Add one oriented pair to every bin of a line set its separation ``sep`` falls in."""
+    if n < 0 or lag <= 0.0:
+        return
+    if tol + tol <= lag:
+        k = _bin_one(sep, lag, inv_lag, tol, n)
+        if k >= 0:
+            _add(acc, first_slot + k, values, head, tail, d, n_values)
+        return
+    count = _bins(sep, lag, tol, n, scratch)
+    for q in range(count):
+        _add(acc, first_slot + scratch[q], values, head, tail, d, n_values)
 
 
 @jit(inline="always")
@@ -91,18 +136,91 @@ def _add(acc, slot, values, head, tail, d, n_values):
             k += 2
 
 
+LOOKUP_SIDE = 16  # cube-map cells per face side for the direction lookup
+
+
 @jit(inline="always")
-def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, directions, dir_params, scratch):
+def _direction_cell(dx, dy, dz):
+    """The cube-map cell of a nonzero direction: face 2 a + (negative) by the dominant axis a, then
+    the two other components (in axis order) over the dominant one, each cut in LOOKUP_SIDE parts."""
+    ax = abs(dx)
+    ay = abs(dy)
+    az = abs(dz)
+    if ax >= ay and ax >= az:
+        face = 0 if dx >= 0.0 else 1
+        m, p, r = ax, dy, dz
+    elif ay >= az:
+        face = 2 if dy >= 0.0 else 3
+        m, p, r = ay, dx, dz
+    else:
+        face = 4 if dz >= 0.0 else 5
+        m, p, r = az, dx, dy
+    half = 0.5 * LOOKUP_SIDE
+    ip = int((p / m + 1.0) * half)
+    ir = int((r / m + 1.0) * half)
+    ip = min(max(ip, 0), LOOKUP_SIDE - 1)
+    ir = min(max(ir, 0), LOOKUP_SIDE - 1)
+    return (face * LOOKUP_SIDE + ip) * LOOKUP_SIDE + ir
+
+
+def direction_lookup(u, cos_tolerance) -> np.ndarray:
+    """For each cube-map cell, the directional sets whose double cone (angle tolerance about u and
+    -u) can reach into it, conservatively: a set is listed when the angle from the cell's centre to
+    u or -u is within its tolerance plus the cell's radius (its farthest corner) plus 1e-6 radians.
+    One int64 array: offsets of the cells' lists (cells + 1), then the lists, offsets counting from
+    the array's start."""
+    u = np.asarray(u, dtype=np.float64).reshape(-1, 3)
+    side = LOOKUP_SIDE
+    edges = np.linspace(-1.0, 1.0, side + 1)
+    mids = 0.5 * (edges[1:] + edges[:-1])
+    centres, radii = [], []
+    for face in range(6):
+        axis, negative = divmod(face, 2)
+        others = [a for a in range(3) if a != axis]
+
+        def direction(p, r):
+            v = np.zeros(np.broadcast(p, r).shape + (3,))
+            v[..., axis] = -1.0 if negative else 1.0
+            v[..., others[0]] = p
+            v[..., others[1]] = r
+            return v / np.linalg.norm(v, axis=-1, keepdims=True)
+
+        pp, rr = np.meshgrid(mids, mids, indexing="ij")
+        centre = direction(pp, rr)
+        radius = np.zeros((side, side))
+        for cp in (edges[:-1], edges[1:]):
+            for cr in (edges[:-1], edges[1:]):
+                corner = direction(*np.meshgrid(cp, cr, indexing="ij"))
+                cos = np.clip((corner * centre).sum(axis=-1), -1.0, 1.0)
+                radius = np.maximum(radius, np.arccos(cos))
+        centres.append(centre.reshape(-1, 3))
+        radii.append(radius.ravel())
+    centres = np.concatenate(centres)
+    radii = np.concatenate(radii)
+    tolerance = np.arccos(np.clip(np.asarray(cos_tolerance, dtype=np.float64), -1.0, 1.0))
+    angle = np.arccos(np.clip(np.abs(centres @ u.T), 0.0, 1.0))  # to the nearer of u and -u
+    listed = angle <= tolerance[None, :] + radii[:, None] + 1e-6
+    counts = listed.sum(axis=1)
+    n_cells = len(centres)
+    offsets = n_cells + 1 + np.r_[0, np.cumsum(counts)]
+    return np.concatenate([offsets, np.nonzero(listed)[1]]).astype(np.int64)
+
+
+@jit(inline="always")
+def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, directions, dir_params, dir_lookup,
+          scratch):
     """Add one unordered pair of points within the search distance (separation dx, dy, dz from i to
     j) to every bin of every set it falls in."""
-    same_hole = hole[i] == hole[j]
     mode = layout[L_FILTER]
-    if (mode == 1 and same_hole) or (mode == 2 and not same_hole):
-        return 0
+    same_hole = False
+    if mode != 0 or layout[L_DH_N] >= 0:  # read the holes only when a filter or set needs them
+        same_hole = hole[i] == hole[j]
+        if (mode == 1 and same_hole) or (mode == 2 and not same_hole):
+            return 0
     d = math.sqrt(d2)
     # canonical orientation: the head is the lower point (then the more southern, then western);
-    # written as selects rather than a branch, which would be mispredicted half the time
-    flip = dz > 0.0 or (dz == 0.0 and (dy > 0.0 or (dy == 0.0 and dx > 0.0)))
+    # bitwise operators and selects rather than branches, which would be mispredicted half the time
+    flip = (dz > 0.0) | ((dz == 0.0) & ((dy > 0.0) | ((dy == 0.0) & (dx > 0.0))))
     head = i if flip else j
     tail = j if flip else i
     sign = -1.0 if flip else 1.0
@@ -111,19 +229,26 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
     dz *= sign
     n_values = layout[L_N_VALUES]
     # omnidirectional
-    n = _bins(d, params[F_OMNI_LAG], params[F_OMNI_TOL], layout[L_OMNI_N], scratch)
-    for q in range(n):
-        _add(acc, layout[L_OMNI_SLOT] + scratch[q], values, head, tail, d, n_values)
+    _add_binned(acc, layout[L_OMNI_SLOT], d, params[F_OMNI_LAG], params[F_OMNI_INV], params[F_OMNI_TOL],
+                layout[L_OMNI_N], values, head, tail, d, n_values, scratch)
     # directional: angle tolerance about u, then bandwidths across (horizontal) and along (vertical)
     # the direction's vertical plane
-    n_dir = layout[L_DIR_COUNT]
+    # only the sets listed for the cube-map cell of the separation's direction can take it
+    # (direction_lookup); the tests below decide, exactly as if every set were tried
     width = layout[L_DIR_N] + 1
-    for s in range(n_dir):
+    first = 0
+    last = 0
+    if layout[L_DIR_COUNT] > 0 and d > 0.0:
+        cell = _direction_cell(dx, dy, dz)
+        first = dir_lookup[cell]
+        last = dir_lookup[cell + 1]
+    for q in range(first, last):
+        s = dir_lookup[q]
         ux = directions[s, 0]
         uy = directions[s, 1]
         uz = directions[s, 2]
         c = dx * ux + dy * uy + dz * uz
-        if abs(c) < d * dir_params[s, 0] or d == 0.0:
+        if abs(c) < d * dir_params[s, 0]:
             continue
         across = abs(dx * directions[s, 3] + dy * directions[s, 4] + dz * directions[s, 5])
         if across > dir_params[s, 1]:
@@ -131,14 +256,13 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
         along = abs(dx * directions[s, 6] + dy * directions[s, 7] + dz * directions[s, 8])
         if along > dir_params[s, 2]:
             continue
-        n = _bins(d, params[F_DIR_LAG], params[F_DIR_TOL], layout[L_DIR_N], scratch)
-        for q in range(n):
-            if c >= 0.0:  # the separation points along u: the canonical head is the head
-                _add(acc, layout[L_DIR_SLOT] + s * width + scratch[q], values, head, tail, d, n_values)
-            else:
-                _add(acc, layout[L_DIR_SLOT] + s * width + scratch[q], values, tail, head, d, n_values)
+        # the separation points along u: the canonical head is the head
+        dir_head = head if c >= 0.0 else tail
+        dir_tail = tail if c >= 0.0 else head
+        _add_binned(acc, layout[L_DIR_SLOT] + s * width, d, params[F_DIR_LAG], params[F_DIR_INV],
+                    params[F_DIR_TOL], layout[L_DIR_N], values, dir_head, dir_tail, d, n_values, scratch)
     # down the hole: the deeper sample is the head
-    if same_hole and layout[L_DH_N] > 0:
+    if layout[L_DH_N] >= 0 and same_hole:
         sep = depth[j] - depth[i]
         dh_head = j
         dh_tail = i
@@ -146,9 +270,8 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
             dh_head = i
             dh_tail = j
             sep = -sep
-        n = _bins(sep, params[F_DH_LAG], params[F_DH_TOL], layout[L_DH_N], scratch)
-        for q in range(n):
-            _add(acc, layout[L_DH_SLOT] + scratch[q], values, dh_head, dh_tail, sep, n_values)
+        _add_binned(acc, layout[L_DH_SLOT], sep, params[F_DH_LAG], params[F_DH_INV], params[F_DH_TOL],
+                    layout[L_DH_N], values, dh_head, dh_tail, sep, n_values, scratch)
     # the variogram volume: lag-vector cells, one half stored (h and -h are the same pair)
     nx = layout[L_VOL_NX]
     if nx >= 0:
@@ -173,7 +296,7 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
 
 @jit_parallel
 def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout, params, directions,
-              dir_params, n_slots, n_columns):
+              dir_params, dir_lookup, n_slots, n_columns):
     """Visit every unordered pair within the search distance once.
 
     ``tasks`` (k, 2) are pairs of cells (A, B) with B == A for pairs inside a cell; task k goes to
@@ -212,7 +335,7 @@ def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout
                     d2 = dx * dx + dy * dy + dz * dz
                     if d2 <= max2:
                         inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
-                                        directions, dir_params, scratch)
+                                        directions, dir_params, dir_lookup, scratch)
         candidates[t] = cand
         accepted[t] = inside
     total = np.zeros((n_slots, n_columns))
@@ -223,7 +346,7 @@ def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout
 
 @jit_parallel
 def brute_force_pass(n_threads, x, y, z, hole, depth, values, layout, params, directions, dir_params,
-                     n_slots, n_columns):
+                     dir_lookup, n_slots, n_columns):
     """Every pair of points, no search structure: the compute limit per pair (benchmarks, tests).
 
     The inner loop is written out here as in ``pair_pass`` on purpose: a shared inlined helper for it
@@ -247,7 +370,7 @@ def brute_force_pass(n_threads, x, y, z, hole, depth, values, layout, params, di
                 d2 = dx * dx + dy * dy + dz * dz
                 if d2 <= max2:
                     inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
-                                    directions, dir_params, scratch)
+                                    directions, dir_params, dir_lookup, scratch)
         accepted[t] = inside
     total = np.zeros((n_slots, n_columns))
     for t in range(n_threads):
@@ -269,7 +392,7 @@ def _mix(i, j):
 
 @jit
 def pair_list_pass(tasks, cell_start, x, y, z, hole, depth, values, layout, params, directions, dir_params,
-                   n_slots, n_columns, target, keep_below, max_out):
+                   dir_lookup, n_slots, n_columns, target, keep_below, max_out):
     """The pairs that fall in one bin (slot ``target``), found by the very code that fills the bins:
     a pair belongs to the bin when adding it changes the bin's count. Pairs whose hash is below
     ``keep_below`` are kept, up to ``max_out``. Returns (i, j, head value, tail value, separation,
@@ -300,7 +423,7 @@ def pair_list_pass(tasks, cell_start, x, y, z, hole, depth, values, layout, para
                 sum_t = acc[target, SUM_T]
                 sum_d = acc[target, SUM_D]
                 _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, directions, dir_params,
-                      scratch)
+                      dir_lookup, scratch)
                 if acc[target, COUNT] != before and kept < max_out and _mix(min(i, j), max(i, j)) < keep_below:
                     out_i[kept] = i
                     out_j[kept] = j

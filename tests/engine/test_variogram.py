@@ -103,6 +103,31 @@ def test_cell_search_equals_brute_force_kernel_on_larger_data():
     assert fast.accepted == slow.accepted and fast.candidates < slow.candidates
 
 
+def test_direction_lookup_lists_every_set_that_can_take_a_pair():
+    # the cube-map lookup only prunes: every (direction, set) the exact cone test accepts must be
+    # listed for the direction's cell, for narrow and wide tolerances, axes and cube-edge directions
+    rng = np.random.default_rng(11)
+    count = 300
+    golden = math.pi * (3 - math.sqrt(5))  # a Fibonacci set of directions on the sphere
+    zs = 1 - (np.arange(count) + 0.5) / count
+    u = np.c_[np.sqrt(1 - zs**2) * np.cos(golden * np.arange(count)),
+              np.sqrt(1 - zs**2) * np.sin(golden * np.arange(count)), zs]
+    tolerance = rng.choice([0.5, 3.0, 10.0, 45.0, 89.0, 90.0], count)
+    cos_tol = np.cos(np.radians(tolerance))
+    lookup = k.direction_lookup(u, cos_tol)
+    e = np.concatenate([rng.normal(size=(20000, 3)), np.eye(3), -np.eye(3), [[1, 1, 1], [1, -1, 0], [0, 1, -1]],
+                        u[:50], u[:50] * -1.0])
+    for vec in e:
+        cell = k._direction_cell(*vec)
+        listed = set(lookup[lookup[cell]:lookup[cell + 1]].tolist())
+        d = np.linalg.norm(vec)
+        accepted = np.flatnonzero(np.abs(u @ vec) >= d * cos_tol)
+        assert set(accepted.tolist()) <= listed, vec
+    # and it does prune: with 5 degree cones each cell lists a small share of the 300 sets
+    narrow = k.direction_lookup(u, np.full(count, math.cos(math.radians(5.0))))
+    assert np.diff(narrow[:6 * k.LOOKUP_SIDE**2 + 1]).mean() < count / 10
+
+
 def test_one_hole_empty_and_single_point():
     xyz = np.c_[np.zeros(10), np.zeros(10), -np.arange(10.0)]
     acc = accumulate(xyz, np.arange(10.0), Sets(omni=LagBins(1.0, 3), downhole=LagBins(1.0, 3)),
