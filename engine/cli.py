@@ -21,6 +21,11 @@ DESCRIPTION = (
     "qualified person under the public reporting code that applies."
 )
 
+CAUTION = ("Variogram models feed resource estimates that are publicly reported and on which investment and "
+           "mine-planning decisions rest. This output supports, and does not replace, the judgment of a competent "
+           "or qualified person under the public reporting code that applies; local codes and licensed practice "
+           "prevail.")
+
 
 # --------------------------------------------------------------------------------------------
 # console helpers
@@ -120,6 +125,30 @@ def _computing_options(parser: argparse.ArgumentParser):
                         help="leave out rows with errors (listed in rejected.csv) instead of refusing to run")
 
 
+def _composite_input(parser: argparse.ArgumentParser):
+    """The composites file, the value column and the domain of the commands that read composites."""
+    parser.add_argument("--composites", required=True, metavar="FILE", help="composites.csv (or any table with "
+                        "hole, x, y, z and the value; from and to give the down-hole depth)")
+    parser.add_argument("--value", required=True, metavar="COLUMN", help="the value column")
+    parser.add_argument("--domain", metavar="COLUMN=VALUE", help="use only the composites of one domain")
+
+
+def _fit_options(parser: argparse.ArgumentParser):
+    """Options of the commands that fit a model."""
+    group = parser.add_argument_group("fit")
+    group.add_argument("--lag", type=float, metavar="M", help="lag spacing (default: half the hole spacing, at "
+                       "least twice the composite length)")
+    group.add_argument("--lags", type=int, default=12, metavar="N", help="number of lags (default 12)")
+    group.add_argument("--structures", choices=("auto", "1", "2"), default="auto",
+                       help="nested structures (default auto: one or two, by the Bayesian information criterion)")
+    group.add_argument("--transform", choices=("none", "normal-score", "log"), default="none",
+                       help="transform the values before fitting (default: none)")
+    group.add_argument("--bootstrap", type=int, default=50, metavar="N",
+                       help="hole-wise bootstrap replicates for the uncertainty (default 50; 0 leaves it out)")
+    group.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
+    group.add_argument("--threads", type=int, metavar="N", help="worker threads (default: all cores)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="drillaxis", description=DESCRIPTION)
     from . import __version__
@@ -175,10 +204,7 @@ def build_parser() -> argparse.ArgumentParser:
                             description="Experimental variograms of one value column: omnidirectional, "
                                         "directional, down-hole and the variogram volume, in one pass "
                                         "over the pairs. Writes variograms.csv and volume.npz.")
-    p.add_argument("--composites", required=True, metavar="FILE", help="composites.csv (or any table with "
-                   "hole, x, y, z and the value; from and to give the down-hole depth)")
-    p.add_argument("--value", required=True, metavar="COLUMN", help="the value column")
-    p.add_argument("--domain", metavar="COLUMN=VALUE", help="use only the composites of one domain")
+    _composite_input(p)
     lags = p.add_argument_group("lags")
     lags.add_argument("--lag", type=float, metavar="M", help="lag spacing in metres (default: from the data)")
     lags.add_argument("--lags", type=int, default=10, metavar="N", help="number of lags (default 10)")
@@ -213,6 +239,28 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--threads", type=int, metavar="N", help="worker threads (default: all cores)")
     p.add_argument("--dask", metavar="ADDRESS", help="run the pair work on a Dask cluster: tcp://host:port, or "
                    "local:N for N local worker processes")
+    _common_options(p)
+
+    p = commands.add_parser("fit", help="principal directions and the fitted variogram model",
+                            description="Find the directions of greatest, intermediate and least continuity, "
+                                        "fit a nugget and nested structures with the anisotropy ellipsoid, "
+                                        "bootstrap their uncertainty by holes and check the drill pattern. "
+                                        "Writes model.json, pattern.json and fit_variograms.csv.")
+    _composite_input(p)
+    _fit_options(p)
+    _common_options(p)
+
+    p = commands.add_parser("run", help="composite, fit and check in one go",
+                            description="Desurvey and composite the tables, then fit the variogram model of "
+                                        "one value column (optionally in one domain) and check the drill "
+                                        "pattern. Writes every file of the steps into --out.")
+    _table_options(p)
+    _computing_options(p)
+    p.add_argument("--value", required=True, metavar="COLUMN", help="the value column to fit")
+    p.add_argument("--domain", metavar="COLUMN=VALUE", help="composite by domain column COLUMN and fit VALUE's "
+                   "composites only")
+    p.add_argument("--length", type=float, default=2.0, metavar="M", help="composite length (default 2)")
+    _fit_options(p)
     _common_options(p)
 
     p = commands.add_parser("demo", help="run the workflow on a built-in synthetic drill program",
@@ -441,22 +489,31 @@ def cmd_composite(args, console: Console) -> int:
 
 
 def _read_composites(path, value, domain):
+    from .tables import read_raw_table
+
+    raw = read_raw_table(path, "composites", frozenset({"hole"}))
+    if domain:
+        column, _, wanted = domain.partition("=")
+        domain = (column, wanted)
+    return _composites_arrays(raw.frame, value, domain, path)
+
+
+def _composites_arrays(frame, value, domain, path="the composites"):
+    """Positions, values, hole numbers, mid-depths, the median length and the count left out for
+    want of a position; ``domain`` is None or (column, wanted value)."""
     import numpy as np
     import pandas as pd
 
     from .errors import TableError
-    from .tables import read_raw_table
 
-    raw = read_raw_table(path, "composites", frozenset({"hole"}))
-    frame = raw.frame
     missing = [c for c in ("hole", "x", "y", "z", value) if c not in frame.columns]
     if missing:
         raise TableError(f"{path}: no column {', '.join(map(repr, missing))}. Columns found: "
                          f"{', '.join(map(repr, frame.columns))}.")
     if domain:
-        column, _, wanted = domain.partition("=")
+        column, wanted = domain
         if column not in frame.columns:
-            raise UsageError(f"--domain {domain!r}: no column {column!r} in {path}.")
+            raise UsageError(f"--domain {column}={wanted}: no column {column!r} in {path}.")
         frame = frame[frame[column].astype(str) == wanted]
         if frame.empty:
             raise TableError(f"{path}: no composite has {column} = {wanted!r}.")
@@ -558,6 +615,122 @@ def cmd_variogram(args, console: Console) -> int:
     return 0
 
 
+def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, console: Console, step, domain_text=None):
+    """Fit the model, check the pattern, write model.json, pattern.json and fit_variograms.csv."""
+    import numpy as np
+    import pandas as pd
+
+    from .fit import FitOptions, VariogramFitter, model_json
+    from .outputs import write_csv, write_json
+    from .pattern import check_model, drill_pattern
+    from .variogram import normal_scores
+
+    if args.transform == "log":
+        if (values[np.isfinite(values)] <= 0).any():
+            raise UsageError("--transform log needs values above zero.")
+        values = np.log(values)
+    elif args.transform == "normal-score":
+        values = normal_scores(values)
+    options = FitOptions(lag_m=args.lag, lags=args.lags, structures=args.structures, bootstrap=args.bootstrap,
+                         seed=args.seed, threads=args.threads)
+    fitter = VariogramFitter(options).fit(xyz, values, hole, depth, composite_length=length, progress=step)
+    result = fitter.result_
+    model = result.model
+    step("checking the drill pattern")
+    pattern = drill_pattern(xyz, hole)
+    ranges = [max(s.ranges_m[a] for s in model.structures) for a in range(3)]
+    checks = check_model(pattern, xyz, model.axes, ranges, result.principal, min_pairs=options.min_pairs)
+    pattern["model_axes"] = checks["axes"]
+    pattern["warnings"] = checks["warnings"]
+    data = model_json(result, args.value, domain_text)
+    data["transform"] = args.transform
+    data["pattern"] = {"warnings": checks["warnings"],
+                       "collar_spacing_m": pattern.get("collar_spacing_m", {}).get("median"),
+                       "drill_lines": pattern.get("lines"), "hole_direction": pattern.get("hole_direction")}
+    data["caution"] = CAUTION
+    write_json(data, out / "model.json")
+    write_json(pattern, out / "pattern.json")
+    rows = []
+    for a, (name, ex) in enumerate(zip(("major", "semi_major", "minor"), result.principal)):
+        lag_gamma = model.gamma_along(model.axes[a], np.nan_to_num(ex.distance))
+        rows.append(pd.DataFrame({"set": name, "distance": ex.distance, "pairs": ex.pairs, "gamma": ex.gamma,
+                                  "model": np.where(np.isfinite(ex.distance), lag_gamma, np.nan)}))
+    dh = result.downhole
+    rows.append(pd.DataFrame({"set": "downhole", "distance": dh.distance, "pairs": dh.pairs, "gamma": dh.gamma,
+                              "model": np.nan}))
+    write_csv(pd.concat(rows, ignore_index=True), out / "fit_variograms.csv")
+    _model_summary(data, out, console)
+    console.say(f"  caution: {CAUTION}")
+    return data
+
+
+def _model_summary(data: dict, out: Path, console: Console):
+    o = data["orientation"]
+    console.say(f"model of {data['variable']}: variance {data['variance']:.4g}, nugget {data['nugget']:.4g}, "
+                f"{data['pairs_used']:,} pairs along the principal axes -> {out / 'model.json'}")
+    for s in data["structures"]:
+        r = s["ranges"]
+        console.say(f"  {s['shape']} sill {s['sill']:.4g}, ranges {r['major']:.1f} / {r['semi_major']:.1f} / "
+                    f"{r['minor']:.1f} m (major / semi-major / minor)")
+    console.say(f"  major trend {o['major']['trend']:.1f} plunge {o['major']['plunge']:.1f}; semi-major trend "
+                f"{o['semi_major']['trend']:.1f} plunge {o['semi_major']['plunge']:.1f}; minor trend "
+                f"{o['minor']['trend']:.1f} plunge {o['minor']['plunge']:.1f}")
+    console.say(f"  plane dip direction {o['plane']['dip_direction']:.1f} dip {o['plane']['dip']:.1f}, pitch "
+                f"{o['pitch']:.1f}")
+    b = data.get("bootstrap")
+    if b and "axis_angle_deg" in b:
+        a = b["axis_angle_deg"]
+        console.say(f"  bootstrap ({b['replicates'] - b['failed']} replicates): 95% of the replicate axes within "
+                    f"{a['major']['p95']:.1f} / {a['semi_major']['p95']:.1f} / {a['minor']['p95']:.1f} degrees")
+    for text in data["pattern"]["warnings"]:
+        console.say(f"  WARNING: {text}")
+    for text in data["fit"]["problems"]:
+        console.say(f"  PROBLEM: {text}")
+
+
+def cmd_fit(args, console: Console) -> int:
+    out = _out_dir(args.out)
+    names = ["reading composites", "searching directions", "fanning about the major axis",
+             "refining the axes on the variogram volume", "fitting the model", f"bootstrap of {args.bootstrap} "
+             "replicates", "checking the drill pattern"]
+    with console.stages(names) as step:
+        step(names[0])
+        xyz, values, hole, depth, length, unplaced = _read_composites(args.composites, args.value, args.domain)
+        _fit_and_check(xyz, values, hole, depth, length, args, out, console, step, args.domain)
+    if unplaced:
+        console.say(f"  {unplaced} composite(s) without a position left out")
+    return 0
+
+
+def cmd_run(args, console: Console) -> int:
+    out = _out_dir(args.out)
+    domain_column, wanted = None, None
+    if args.domain:
+        domain_column, _, wanted = args.domain.partition("=")
+        if not wanted:
+            raise UsageError(f"--domain {args.domain!r}: write COLUMN=VALUE, for example domain=FRESH.")
+    composite_args = argparse.Namespace(**{**vars(args), "domain": domain_column, "residual": "merge",
+                                           "merge_below": 0.5, "equal": False, "min_coverage": 0.5,
+                                           "density": None, "density_default": None, "whole_run": False,
+                                           "bench": None, "bench_base": 0.0, "cap": []})
+    _composite_options(composite_args)
+    names = ["reading and validating", "desurveying", "compositing", "writing composites", "searching directions",
+             "fanning about the major axis", "refining the axes on the variogram volume", "fitting the model",
+             f"bootstrap of {args.bootstrap} replicates", "checking the drill pattern"]
+    with console.stages(names) as step:
+        step(names[0])
+        tables, rejected = _checked_tables(composite_args, out)
+        if args.value not in tables.value_columns:
+            raise UsageError(f"--value {args.value!r}: not a value column of the intervals table (value columns: "
+                             f"{', '.join(tables.value_columns) or 'none'}).")
+        result = _composite(tables, rejected, composite_args, out, step)
+        xyz, values, hole, depth, length, _ = _composites_arrays(result.composites, args.value,
+                                                                 (domain_column, wanted) if wanted else None)
+        _composite_summary(result, out, console)
+        _fit_and_check(xyz, values, hole, depth, length, args, out, console, step, args.domain)
+    return 0
+
+
 def cmd_demo(args, console: Console) -> int:
     from synthetic_holes import ProgramSpec, generate_program
 
@@ -600,7 +773,7 @@ def cmd_demo(args, console: Console) -> int:
 
 
 COMMANDS = {"check": cmd_check, "desurvey": cmd_desurvey, "composite": cmd_composite,
-            "variogram": cmd_variogram, "demo": cmd_demo}
+            "variogram": cmd_variogram, "fit": cmd_fit, "run": cmd_run, "demo": cmd_demo}
 
 
 def main(argv=None) -> int:

@@ -19,7 +19,8 @@ def _chunk_pass(data, tasks):
     """Run on a worker: the single-thread pass over some tasks."""
     sums, candidates, accepted = kernels.pair_pass(
         1, tasks, data["cell_start"], data["x"], data["y"], data["z"], data["hole"], data["depth"],
-        data["values"], data["layout"], data["params"], data["directions"], data["dir_params"], data["dir_lookup"],
+        data["values"], data["weights"], data["layout"], data["params"], data["directions"], data["dir_params"],
+        data["dir_lookup"],
         int(data["n_slots"]), int(data["n_columns"]))
     return sums, int(candidates), int(accepted)
 
@@ -45,13 +46,14 @@ def client_for(address: str):
         raise UsageError(f"--dask {address!r}: cannot reach the scheduler ({exc}).") from None
 
 
-def run_on_dask(index, values, plan, address: str, chunks_per_worker: int = 4):
+def run_on_dask(index, values, plan, address: str, chunks_per_worker: int = 4, weights=None):
     """Like ``PairIndex.run``, on a Dask cluster: (sums, candidate pairs, pairs within reach)."""
     v = index.sorted_values(values)
-    layout, params = kernels.kernel_arguments(plan, v.shape[1])
+    w = index.sorted_weights(weights)
+    layout, params = kernels.kernel_arguments(plan, v.shape[1], weighted=len(w) > 0)
     n_columns = kernels.N_STATS * v.shape[1] + v.shape[1] * (v.shape[1] - 1)
     data = {"cell_start": index.cell_start, "x": index.x, "y": index.y, "z": index.z, "hole": index.hole,
-            "depth": index.depth, "values": v, "layout": layout, "params": params,
+            "depth": index.depth, "values": v, "weights": w, "layout": layout, "params": params,
             "directions": plan.directions, "dir_params": plan.dir_params, "dir_lookup": plan.dir_lookup,
             "n_slots": plan.n_slots, "n_columns": n_columns}
     client, cluster = client_for(address)

@@ -31,6 +31,10 @@ class SurveyError(DrillaxisError, ValueError):
     """Survey stations cannot be turned into a hole trace."""
 
 
+class FitError(DrillaxisError, RuntimeError):
+    """The data cannot support a variogram fit (too few pairs or lags, no variance)."""
+
+
 class UsageError(DrillaxisError, ValueError):
     """The command was called wrongly (option values, missing files)."""
 

@@ -356,9 +356,11 @@ def bin_pairs(xyz, values, sets: Sets, set_name: str, lag_index: int, direction:
 
 
 def accumulate(xyz, values, sets: Sets, hole=None, depth=None, index: PairIndex | None = None,
-               threads: int | None = None, brute_force: bool = False, dask: str | None = None) -> Accumulation:
+               threads: int | None = None, brute_force: bool = False, dask: str | None = None,
+               weights=None) -> Accumulation:
     """One pass over every pair: fill the bins of ``sets`` for every column of ``values``. With
-    ``dask`` (a scheduler address or ``local:N``) the pass runs on a Dask cluster."""
+    ``dask`` (a scheduler address or ``local:N``) the pass runs on a Dask cluster. ``weights``: hole
+    weights per point (see PairIndex.run)."""
     plan = sets.plan()
     if index is None:
         index = PairIndex(xyz, hole, depth, max_distance_m=plan.max_distance_m)
@@ -367,9 +369,9 @@ def accumulate(xyz, values, sets: Sets, hole=None, depth=None, index: PairIndex 
     if dask:
         from .distributed import run_on_dask
 
-        sums, candidates, accepted = run_on_dask(index, values, plan, dask)
+        sums, candidates, accepted = run_on_dask(index, values, plan, dask, weights=weights)
         return Accumulation(sums, plan, n_values, candidates, accepted)
-    sums, candidates, accepted = index.run(values, plan, threads=threads, brute_force=brute_force)
+    sums, candidates, accepted = index.run(values, plan, threads=threads, brute_force=brute_force, weights=weights)
     return Accumulation(sums, plan, n_values, candidates, accepted)
 
 

@@ -122,13 +122,24 @@ class PairIndex:
         share = 1.0 if expected_pairs <= max_pairs else max_pairs / expected_pairs
         keep_below = min(int(share * 2**32) + 1, 2**32)
         i, j, head, tail, d, kept = kernels.pair_list_pass(
-            self.tasks, self.cell_start, self.x, self.y, self.z, self.hole, self.depth, v, layout, params,
-            plan.directions, plan.dir_params, plan.dir_lookup, plan.n_slots, kernels.N_STATS, slot, keep_below,
-            max_pairs)
+            self.tasks, self.cell_start, self.x, self.y, self.z, self.hole, self.depth, v, np.zeros(0), layout,
+            params, plan.directions, plan.dir_params, plan.dir_lookup, plan.n_slots, kernels.N_STATS, slot,
+            keep_below, max_pairs)
         return self.order[i[:kept]], self.order[j[:kept]], head[:kept], tail[:kept], d[:kept]
 
-    def run(self, values, plan, threads: int | None = None, brute_force: bool = False):
-        """Accumulate the bins of ``plan`` (see engine.variogram.Plan) over every pair.
+    def sorted_weights(self, weights) -> np.ndarray:
+        """Point weights (n,) in the index's point order; an empty array for an unweighted pass."""
+        if weights is None:
+            return np.zeros(0)
+        weights = np.asarray(weights, dtype=np.float64).ravel()
+        if len(weights) != self.point_count or not (np.isfinite(weights).all() and (weights >= 0).all()):
+            raise UsageError(f"weights must be {self.point_count} finite numbers of at least zero")
+        return np.ascontiguousarray(weights[self.order])
+
+    def run(self, values, plan, threads: int | None = None, brute_force: bool = False, weights=None):
+        """Accumulate the bins of ``plan`` (see engine.variogram.Plan) over every pair. With
+        ``weights`` (one per point, the same within a hole: the hole-wise bootstrap) a pair of two
+        holes counts w_i w_j and a pair within a hole w_i.
 
         Returns (accumulators (slots, columns), candidate pairs, pairs within the search distance).
         """
@@ -136,16 +147,32 @@ class PairIndex:
             raise UsageError(f"the sets reach {plan.max_distance_m:g} m, beyond the index's search distance "
                              f"{self.max_distance_m:g} m; build the index with a larger distance")
         v = self.sorted_values(values)
-        layout, params = kernels.kernel_arguments(plan, v.shape[1])
+        w = self.sorted_weights(weights)
+        layout, params = kernels.kernel_arguments(plan, v.shape[1], weighted=len(w) > 0)
         n_columns = kernels.N_STATS * v.shape[1] + v.shape[1] * (v.shape[1] - 1)
         with numba_threads(threads) as count:
             if brute_force:
                 acc, accepted = kernels.brute_force_pass(
-                    count, self.x, self.y, self.z, self.hole, self.depth, v, layout, params, plan.directions,
+                    count, self.x, self.y, self.z, self.hole, self.depth, v, w, layout, params, plan.directions,
                     plan.dir_params, plan.dir_lookup, plan.n_slots, n_columns)
                 n = self.point_count
                 return acc, n * (n - 1) // 2, int(accepted)
             acc, candidates, accepted = kernels.pair_pass(
-                count, self.tasks, self.cell_start, self.x, self.y, self.z, self.hole, self.depth, v, layout,
+                count, self.tasks, self.cell_start, self.x, self.y, self.z, self.hole, self.depth, v, w, layout,
                 params, plan.directions, plan.dir_params, plan.dir_lookup, plan.n_slots, n_columns)
         return acc, int(candidates), int(accepted)
+
+    def run_replicates(self, values, plan, replicate_weights, threads: int | None = None) -> np.ndarray:
+        """Weighted pair counts and sums of squared differences of one variable for many bootstrap
+        replicates in one pass (``replicate_weights`` (n, R), one column per replicate; the
+        directional, down-hole and volume sets of ``plan``). Returns (slots, 2, R)."""
+        v = np.ascontiguousarray(self.sorted_values(values)[:, 0])
+        w = np.asarray(replicate_weights, dtype=np.float64)
+        if w.ndim != 2 or len(w) != self.point_count or not (np.isfinite(w).all() and (w >= 0).all()):
+            raise UsageError(f"replicate weights must be ({self.point_count}, R) finite numbers of at least zero")
+        w = np.ascontiguousarray(w[self.order])
+        layout, params = kernels.kernel_arguments(plan, 1, weighted=True)
+        with numba_threads(threads) as count:
+            return kernels.replicate_pass(count, self.tasks, self.cell_start, self.x, self.y, self.z, self.hole,
+                                          self.depth, v, w, layout, params, plan.directions, plan.dir_params,
+                                          plan.dir_lookup, plan.n_slots)

@@ -21,20 +21,24 @@ COUNT, SUM_D, SUM_H, SUM_T, SUM_H2, SUM_T2, SUM_SQ, SUM_ABS, SUM_HT, SUM_PR = ra
 
 # integer layout of the sets (see engine/pairs/__init__.py, _layout)
 (L_OMNI_SLOT, L_OMNI_N, L_DIR_SLOT, L_DIR_COUNT, L_DIR_N, L_DH_SLOT, L_DH_N, L_VOL_SLOT, L_VOL_NX, L_VOL_NY,
- L_VOL_NZ, L_FILTER, L_N_VALUES, L_WIDTH) = range(14)
+ L_VOL_NZ, L_FILTER, L_N_VALUES, L_WEIGHTED, L_WIDTH) = range(15)
 # float parameters (the inverse lags spare the hot path a division)
 (F_MAX2, F_OMNI_LAG, F_OMNI_TOL, F_DIR_LAG, F_DIR_TOL, F_DH_LAG, F_DH_TOL, F_VOL_CX, F_VOL_CY, F_VOL_CZ,
- F_OMNI_INV, F_DIR_INV, F_DH_INV, F_WIDTH) = range(14)
+ F_OMNI_INV, F_DIR_INV, F_DH_INV, F_REACH, F_WIDTH) = range(15)
 
 
-def kernel_arguments(plan, n_values: int):
+def kernel_arguments(plan, n_values: int, weighted: bool = False):
     """The layout and float parameters of a plan as tuples of scalars for the kernels. Tuples, not
     arrays: numba keeps them in registers, where array reads would be repeated after every store
     to the accumulators (the compiler cannot rule out that they overlap)."""
     layout = [int(x) for x in plan.layout]
     layout[L_N_VALUES] = int(n_values)
+    layout[L_WEIGHTED] = int(bool(weighted))
     params = [float(x) for x in plan.params]
-    params[F_MAX2] = float(plan.max_distance_m) ** 2
+    # the search distance decides on d = sqrt(d2), as the bins do; the squared test in the loops only
+    # screens candidates, a little wide so that a pair at exactly the distance is not lost to rounding
+    params[F_REACH] = float(plan.max_distance_m)
+    params[F_MAX2] = float(plan.max_distance_m) ** 2 * (1.0 + 1e-9)
     for lag, inv in ((F_OMNI_LAG, F_OMNI_INV), (F_DIR_LAG, F_DIR_INV), (F_DH_LAG, F_DH_INV)):
         params[inv] = 1.0 / params[lag] if params[lag] > 0 else 0.0
     return tuple(layout), tuple(params)
@@ -87,23 +91,24 @@ def _bin_one(d, lag, inv_lag, tol, n):
 
 
 @jit(inline="always")
-def _add_binned(acc, first_slot, sep, lag, inv_lag, tol, n, values, head, tail, d, n_values, scratch):
+def _add_binned(acc, first_slot, sep, lag, inv_lag, tol, n, values, head, tail, d, n_values, w, scratch):
     """Add one oriented pair to every bin of a line set its separation ``sep`` falls in."""
     if n < 0 or lag <= 0.0:
         return
-    if tol + tol <= lag:
+    if tol + tol <= lag:  # one bin at most, found without a loop
         k = _bin_one(sep, lag, inv_lag, tol, n)
-        if k >= 0:
-            _add(acc, first_slot + k, values, head, tail, d, n_values)
-        return
-    count = _bins(sep, lag, tol, n, scratch)
-    for q in range(count):
-        _add(acc, first_slot + scratch[q], values, head, tail, d, n_values)
+        count = 1 if k >= 0 else 0
+        scratch[0] = k
+    else:
+        count = _bins(sep, lag, tol, n, scratch)
+    for q in range(count):  # one copy of _add here: each copy costs compile time
+        _add(acc, first_slot + scratch[q], values, head, tail, d, n_values, w)
 
 
 @jit(inline="always")
-def _add(acc, slot, values, head, tail, d, n_values):
-    """Add one oriented pair (rows ``head`` and ``tail`` of ``values``) at separation d to a bin."""
+def _add(acc, slot, values, head, tail, d, n_values, w):
+    """Add one oriented pair (rows ``head`` and ``tail`` of ``values``) at separation d to a bin,
+    with weight ``w`` (1 unless the pass is weighted)."""
     row = acc[slot]
     for v in range(n_values):
         h = values[head, v]
@@ -112,18 +117,18 @@ def _add(acc, slot, values, head, tail, d, n_values):
             continue
         base = v * N_STATS
         diff = h - t
-        row[base + COUNT] += 1.0
-        row[base + SUM_D] += d
-        row[base + SUM_H] += h
-        row[base + SUM_T] += t
-        row[base + SUM_H2] += h * h
-        row[base + SUM_T2] += t * t
-        row[base + SUM_SQ] += diff * diff
-        row[base + SUM_ABS] += abs(diff)
-        row[base + SUM_HT] += h * t
+        row[base + COUNT] += w
+        row[base + SUM_D] += w * d
+        row[base + SUM_H] += w * h
+        row[base + SUM_T] += w * t
+        row[base + SUM_H2] += w * (h * h)
+        row[base + SUM_T2] += w * (t * t)
+        row[base + SUM_SQ] += w * (diff * diff)
+        row[base + SUM_ABS] += w * abs(diff)
+        row[base + SUM_HT] += w * (h * t)
         m = 0.5 * (h + t)
         if m != 0.0:
-            row[base + SUM_PR] += diff * diff / (m * m)
+            row[base + SUM_PR] += w * (diff * diff / (m * m))
     # cross terms of every pair of variables
     k = n_values * N_STATS
     for a in range(n_values):
@@ -131,8 +136,8 @@ def _add(acc, slot, values, head, tail, d, n_values):
             da = values[head, a] - values[tail, a]
             db = values[head, b] - values[tail, b]
             if not (np.isnan(da) or np.isnan(db)):
-                row[k] += 1.0
-                row[k + 1] += da * db
+                row[k] += w
+                row[k + 1] += w * (da * db)
             k += 2
 
 
@@ -207,8 +212,8 @@ def direction_lookup(u, cos_tolerance) -> np.ndarray:
 
 
 @jit(inline="always")
-def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, directions, dir_params, dir_lookup,
-          scratch):
+def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, weights, layout, params, directions, dir_params,
+          dir_lookup, scratch):
     """Add one unordered pair of points within the search distance (separation dx, dy, dz from i to
     j) to every bin of every set it falls in."""
     mode = layout[L_FILTER]
@@ -217,7 +222,14 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
         same_hole = hole[i] == hole[j]
         if (mode == 1 and same_hole) or (mode == 2 and not same_hole):
             return 0
+    w = 1.0
+    if layout[L_WEIGHTED]:  # hole weights (the bootstrap): copies of one hole do not pair with each other
+        w = weights[i] if hole[i] == hole[j] else weights[i] * weights[j]
+        if w == 0.0:
+            return 0
     d = math.sqrt(d2)
+    if d > params[F_REACH]:
+        return 0
     # canonical orientation: the head is the lower point (then the more southern, then western);
     # bitwise operators and selects rather than branches, which would be mispredicted half the time
     flip = (dz > 0.0) | ((dz == 0.0) & ((dy > 0.0) | ((dy == 0.0) & (dx > 0.0))))
@@ -230,7 +242,7 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
     n_values = layout[L_N_VALUES]
     # omnidirectional
     _add_binned(acc, layout[L_OMNI_SLOT], d, params[F_OMNI_LAG], params[F_OMNI_INV], params[F_OMNI_TOL],
-                layout[L_OMNI_N], values, head, tail, d, n_values, scratch)
+                layout[L_OMNI_N], values, head, tail, d, n_values, w, scratch)
     # directional: angle tolerance about u, then bandwidths across (horizontal) and along (vertical)
     # the direction's vertical plane
     # only the sets listed for the cube-map cell of the separation's direction can take it
@@ -260,7 +272,7 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
         dir_head = head if c >= 0.0 else tail
         dir_tail = tail if c >= 0.0 else head
         _add_binned(acc, layout[L_DIR_SLOT] + s * width, d, params[F_DIR_LAG], params[F_DIR_INV],
-                    params[F_DIR_TOL], layout[L_DIR_N], values, dir_head, dir_tail, d, n_values, scratch)
+                    params[F_DIR_TOL], layout[L_DIR_N], values, dir_head, dir_tail, d, n_values, w, scratch)
     # down the hole: the deeper sample is the head
     if layout[L_DH_N] >= 0 and same_hole:
         sep = depth[j] - depth[i]
@@ -271,7 +283,7 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
             dh_tail = j
             sep = -sep
         _add_binned(acc, layout[L_DH_SLOT], sep, params[F_DH_LAG], params[F_DH_INV], params[F_DH_TOL],
-                    layout[L_DH_N], values, dh_head, dh_tail, sep, n_values, scratch)
+                    layout[L_DH_N], values, dh_head, dh_tail, sep, n_values, w, scratch)
     # the variogram volume: lag-vector cells, one half stored (h and -h are the same pair)
     nx = layout[L_VOL_NX]
     if nx >= 0:
@@ -290,12 +302,12 @@ def _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, direct
             vol_tail = head
         if abs(ix) <= nx and abs(iy) <= ny and -iz <= nz:
             cell = ((-iz) * (2 * ny + 1) + (iy + ny)) * (2 * nx + 1) + (ix + nx)
-            _add(acc, layout[L_VOL_SLOT] + cell, values, vol_head, vol_tail, d, n_values)
+            _add(acc, layout[L_VOL_SLOT] + cell, values, vol_head, vol_tail, d, n_values, w)
     return 1
 
 
 @jit_parallel
-def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout, params, directions,
+def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, weights, layout, params, directions,
               dir_params, dir_lookup, n_slots, n_columns):
     """Visit every unordered pair within the search distance once.
 
@@ -334,7 +346,7 @@ def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout
                     dz = z[j] - zi
                     d2 = dx * dx + dy * dy + dz * dz
                     if d2 <= max2:
-                        inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
+                        inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, weights, layout, params,
                                         directions, dir_params, dir_lookup, scratch)
         candidates[t] = cand
         accepted[t] = inside
@@ -345,7 +357,7 @@ def pair_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, layout
 
 
 @jit_parallel
-def brute_force_pass(n_threads, x, y, z, hole, depth, values, layout, params, directions, dir_params,
+def brute_force_pass(n_threads, x, y, z, hole, depth, values, weights, layout, params, directions, dir_params,
                      dir_lookup, n_slots, n_columns):
     """Every pair of points, no search structure: the compute limit per pair (benchmarks, tests).
 
@@ -369,7 +381,7 @@ def brute_force_pass(n_threads, x, y, z, hole, depth, values, layout, params, di
                 dz = z[j] - zi
                 d2 = dx * dx + dy * dy + dz * dz
                 if d2 <= max2:
-                    inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, layout, params,
+                    inside += _pair(local, i, j, dx, dy, dz, d2, hole, depth, values, weights, layout, params,
                                     directions, dir_params, dir_lookup, scratch)
         accepted[t] = inside
     total = np.zeros((n_slots, n_columns))
@@ -391,7 +403,7 @@ def _mix(i, j):
 
 
 @jit
-def pair_list_pass(tasks, cell_start, x, y, z, hole, depth, values, layout, params, directions, dir_params,
+def pair_list_pass(tasks, cell_start, x, y, z, hole, depth, values, weights, layout, params, directions, dir_params,
                    dir_lookup, n_slots, n_columns, target, keep_below, max_out):
     """The pairs that fall in one bin (slot ``target``), found by the very code that fills the bins:
     a pair belongs to the bin when adding it changes the bin's count. Pairs whose hash is below
@@ -422,7 +434,7 @@ def pair_list_pass(tasks, cell_start, x, y, z, hole, depth, values, layout, para
                 sum_h = acc[target, SUM_H]
                 sum_t = acc[target, SUM_T]
                 sum_d = acc[target, SUM_D]
-                _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, layout, params, directions, dir_params,
+                _pair(acc, i, j, dx, dy, dz, d2, hole, depth, values, weights, layout, params, directions, dir_params,
                       dir_lookup, scratch)
                 if acc[target, COUNT] != before and kept < max_out and _mix(min(i, j), max(i, j)) < keep_below:
                     out_i[kept] = i
@@ -432,3 +444,127 @@ def pair_list_pass(tasks, cell_start, x, y, z, hole, depth, values, layout, para
                     out_d[kept] = acc[target, SUM_D] - sum_d
                     kept += 1
     return out_i, out_j, out_h, out_t, out_d, kept
+
+
+@jit(inline="always")
+def _bin_slots(sep, first_slot, lag, inv_lag, tol, n, slots, count):
+    """Append to ``slots`` the slots of the bins of a line set that ``sep`` falls in."""
+    if n < 0 or lag <= 0.0:
+        return count
+    if tol + tol <= lag:
+        k = _bin_one(sep, lag, inv_lag, tol, n)
+        if k >= 0 and count < slots.shape[0]:
+            slots[count] = first_slot + k
+            count += 1
+        return count
+    k = int(math.ceil((sep - tol) * inv_lag)) - 1
+    if k < 0:
+        k = 0
+    while k <= n and k * lag - tol < sep and count < slots.shape[0]:
+        if sep <= k * lag + tol:
+            slots[count] = first_slot + k
+            count += 1
+        k += 1
+    return count
+
+
+@jit_parallel
+def replicate_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, replicate_weights, layout, params,
+                   directions, dir_params, dir_lookup, n_slots):
+    """Pair counts and sums of squared differences for R bootstrap replicates at once.
+
+    ``replicate_weights`` (n, R): each point's hole weight in each replicate. A pair of two holes
+    adds w_i w_j, a pair within a hole w_i. Only the directional, down-hole and volume sets of the
+    layout are filled (the same bins as ``pair_pass``, by the same tests); both statistics are
+    symmetric in head and tail, so no orientation is needed. Returns (n_slots, 2, R): weighted
+    counts, then weighted sums of squared differences.
+    """
+    n_rep = replicate_weights.shape[1]
+    acc = np.zeros((n_threads, n_slots, 2, n_rep))
+    n_tasks = tasks.shape[0]
+    max2 = params[F_MAX2]
+    reach = params[F_REACH]
+    width = layout[L_DIR_N] + 1
+    mode = layout[L_FILTER]
+    for t in numba.prange(n_threads):
+        slots = np.empty(64, dtype=np.int64)
+        local = acc[t]
+        for kk in range(t, n_tasks, n_threads):
+            a = tasks[kk, 0]
+            b = tasks[kk, 1]
+            for i in range(cell_start[a], cell_start[a + 1]):
+                j0 = i + 1 if a == b else cell_start[b]
+                for j in range(j0, cell_start[b + 1]):
+                    dx = x[j] - x[i]
+                    dy = y[j] - y[i]
+                    dz = z[j] - z[i]
+                    d2 = dx * dx + dy * dy + dz * dz
+                    if d2 > max2:
+                        continue
+                    d = math.sqrt(d2)
+                    diff = values[i] - values[j]
+                    if d > reach or np.isnan(diff):
+                        continue
+                    same = hole[i] == hole[j]
+                    if (mode == 1 and same) or (mode == 2 and not same):
+                        continue
+                    flip = (dz > 0.0) | ((dz == 0.0) & ((dy > 0.0) | ((dy == 0.0) & (dx > 0.0))))
+                    if flip:
+                        dx = -dx
+                        dy = -dy
+                        dz = -dz
+                    count = 0
+                    if layout[L_DIR_COUNT] > 0 and d > 0.0:
+                        cell = _direction_cell(dx, dy, dz)
+                        for q in range(dir_lookup[cell], dir_lookup[cell + 1]):
+                            s = dir_lookup[q]
+                            c = dx * directions[s, 0] + dy * directions[s, 1] + dz * directions[s, 2]
+                            if abs(c) < d * dir_params[s, 0]:
+                                continue
+                            if abs(dx * directions[s, 3] + dy * directions[s, 4] + dz * directions[s, 5]) > \
+                                    dir_params[s, 1]:
+                                continue
+                            if abs(dx * directions[s, 6] + dy * directions[s, 7] + dz * directions[s, 8]) > \
+                                    dir_params[s, 2]:
+                                continue
+                            count = _bin_slots(d, layout[L_DIR_SLOT] + s * width, params[F_DIR_LAG],
+                                               params[F_DIR_INV], params[F_DIR_TOL], layout[L_DIR_N], slots, count)
+                    if layout[L_DH_N] >= 0 and same:
+                        count = _bin_slots(abs(depth[j] - depth[i]), layout[L_DH_SLOT], params[F_DH_LAG],
+                                           params[F_DH_INV], params[F_DH_TOL], layout[L_DH_N], slots, count)
+                    nx = layout[L_VOL_NX]
+                    if nx >= 0:
+                        ny = layout[L_VOL_NY]
+                        nz = layout[L_VOL_NZ]
+                        ix = int(math.floor(dx / params[F_VOL_CX] + 0.5))
+                        iy = int(math.floor(dy / params[F_VOL_CY] + 0.5))
+                        iz = int(math.floor(dz / params[F_VOL_CZ] + 0.5))
+                        if iz > 0 or (iz == 0 and (iy > 0 or (iy == 0 and ix > 0))):
+                            ix = -ix
+                            iy = -iy
+                            iz = -iz
+                        if abs(ix) <= nx and abs(iy) <= ny and -iz <= nz and count < slots.shape[0]:
+                            slots[count] = layout[L_VOL_SLOT] + ((-iz) * (2 * ny + 1) + (iy + ny)) * (2 * nx + 1) \
+                                + (ix + nx)
+                            count += 1
+                    if count == 0:
+                        continue
+                    sq = diff * diff
+                    wi = replicate_weights[i]
+                    wj = replicate_weights[j]
+                    for q in range(count):
+                        row_n = local[slots[q], 0]
+                        row_sq = local[slots[q], 1]
+                        if same:
+                            for r in range(n_rep):
+                                row_n[r] += wi[r]
+                                row_sq[r] += wi[r] * sq
+                        else:
+                            for r in range(n_rep):
+                                w = wi[r] * wj[r]
+                                row_n[r] += w
+                                row_sq[r] += w * sq
+    total = np.zeros((n_slots, 2, n_rep))
+    for t in range(n_threads):
+        total += acc[t]
+    return total

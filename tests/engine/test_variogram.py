@@ -128,6 +128,58 @@ def test_direction_lookup_lists_every_set_that_can_take_a_pair():
     assert np.diff(narrow[:6 * k.LOOKUP_SIDE**2 + 1]).mean() < count / 10
 
 
+def test_hole_weights_equal_a_weighted_double_loop():
+    # the hole-wise bootstrap's weights: a pair of two holes counts w_a w_b, a pair within a hole w_a;
+    # a weight of zero is the same as leaving the hole out
+    rng = np.random.default_rng(5)
+    xyz, hole, depth, values = holes_program(rng)
+    w_hole = np.array([2.0, 0.0, 1.0, 3.0, 1.0, 2.0])
+    weights = w_hole[hole]
+    sets = Sets(omni=LagBins(4.0, 8), downhole=LagBins(2.0, 8))
+    acc = accumulate(xyz, values, sets, hole=hole, depth=depth, weights=weights)
+    omni = acc.stats(0)[acc.plan.layout[k.L_OMNI_SLOT]:][:9]
+    want_n, want_sq = np.zeros(9), np.zeros(9)
+    for i in range(len(xyz)):
+        for j in range(i + 1, len(xyz)):
+            if np.isnan(values[i]) or np.isnan(values[j]):
+                continue
+            d = np.linalg.norm(xyz[j] - xyz[i])  # some pairs lie at exactly the 34 m reach
+            kk = int(math.ceil((d - 2.0) / 4.0)) if d > 2.0 else 0
+            if kk > 0 and (kk - 1) * 4.0 + 2.0 >= d:
+                kk -= 1
+            if kk > 8:
+                continue
+            w = weights[i] if hole[i] == hole[j] else weights[i] * weights[j]
+            want_n[kk] += w
+            want_sq[kk] += w * (values[i] - values[j]) ** 2
+    assert np.allclose(omni[:, k.COUNT], want_n, rtol=0, atol=1e-12)
+    assert np.allclose(omni[:, k.SUM_SQ], want_sq, rtol=1e-12, atol=1e-10)
+    keep = hole != 1
+    left_out = accumulate(xyz[keep], values[keep], sets, hole=hole[keep], depth=depth[keep], weights=weights[keep])
+    assert np.allclose(acc.sums, left_out.sums, rtol=1e-12, atol=1e-10)
+    ones = accumulate(xyz, values, sets, hole=hole, depth=depth, weights=np.ones(len(xyz)))
+    plain = accumulate(xyz, values, sets, hole=hole, depth=depth)
+    assert np.allclose(ones.sums, plain.sums, rtol=1e-12, atol=1e-10)
+
+
+def test_replicate_pass_equals_one_weighted_pass_per_replicate():
+    # the bootstrap's one-pass form: every replicate's counts and squared-difference sums equal a
+    # separate weighted pass with that replicate's hole weights
+    rng = np.random.default_rng(9)
+    xyz, hole, depth, values = holes_program(rng)
+    sets = Sets(directions=ALL_SETS.directions, directional_bins=ALL_SETS.directional_bins,
+                downhole=ALL_SETS.downhole, volume=ALL_SETS.volume)
+    draws = rng.multinomial(6, np.full(6, 1 / 6), size=4).T.astype(float)  # (holes, replicates)
+    w = draws[hole]
+    plan = sets.plan()
+    index = PairIndex(xyz, hole, depth, max_distance_m=plan.max_distance_m)
+    both = index.run_replicates(values, plan, w)
+    for r in range(w.shape[1]):
+        one = accumulate(xyz, values, sets, hole=hole, depth=depth, weights=w[:, r], index=index).sums
+        assert np.allclose(both[:, 0, r], one[:, k.COUNT], rtol=0, atol=1e-9)
+        assert np.allclose(both[:, 1, r], one[:, k.SUM_SQ], rtol=1e-12, atol=1e-9)
+
+
 def test_one_hole_empty_and_single_point():
     xyz = np.c_[np.zeros(10), np.zeros(10), -np.arange(10.0)]
     acc = accumulate(xyz, np.arange(10.0), Sets(omni=LagBins(1.0, 3), downhole=LagBins(1.0, 3)),

@@ -1,0 +1,560 @@
+"""Principal directions of continuity and the fitted variogram model (docs/methods.md, "Fitting").
+
+The steps, each from the pair engine in few passes:
+
+1. Nugget: the down-hole variogram at its first lags, extrapolated to zero separation.
+2. Global search: a Fibonacci set of directions over the lower hemisphere, each with its directional
+   variogram; a direction's score is the mean of its variogram over the lags, over the variance
+   (lower: more continuous), smoothed over the neighbouring directions. The major axis is the best.
+3. The semi-major axis: a fan in the plane normal to the major; the minor axis is their normal.
+4. A first fit of sills and ranges on the three principal directional variograms (axes fixed), then a
+   local refinement of the three rotation angles together with the sills and ranges against the
+   variogram volume.
+5. The final fit: the three principal directional variograms along the refined axes, fitted jointly
+   by weighted least squares (weights: pairs over mean lag distance) with sills >= 0 and ranges
+   major >= semi-major >= minor, none longer than the longest lag (no pair could show it); one or
+   two structures and the shape chosen by the Bayesian information criterion.
+6. Uncertainty: a hole-wise bootstrap repeats steps 1, 4 and 5 with holes resampled with replacement
+   (each hole weighted by the number of times it was drawn; copies of a hole do not pair with each
+   other), giving intervals for each axis (degrees) and each range.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass
+
+import numpy as np
+
+from .errors import FitError
+from .model import AXIS_NAMES, Model, Structure, unit_variogram
+from .orientation import orientation_from_axes, trend_plunge, vector_from_trend_plunge
+from .pairs import PairIndex
+from .pairs import _kernels as k
+from .variogram import Direction, LagBins, Sets, VolumeGrid, accumulate
+
+
+@dataclass
+class FitOptions:
+    """Choices of the fit. Lengths in metres, angles in degrees. ``lag_m`` None: from the data."""
+
+    lag_m: float | None = None
+    lags: int = 12
+    search_directions: int = 300
+    search_tolerance_deg: float = 12.0
+    fan_directions: int = 36
+    principal_tolerance_deg: float = 15.0
+    smoothing_deg: float = 15.0
+    structures: str = "auto"  # "1", "2" or "auto"
+    shapes: tuple = ("spherical", "exponential")
+    min_pairs: int = 30
+    bootstrap: int = 50
+    seed: int = 0
+    threads: int | None = None
+    volume_cells: tuple = (12, 12, 12)
+
+
+def fibonacci_directions(count: int) -> np.ndarray:
+    """``count`` unit vectors spread evenly over the lower hemisphere (plunge 0-90)."""
+    i = np.arange(count) + 0.5
+    down = i / count  # -z uniformly in (0, 1]: equal areas
+    golden = math.pi * (3.0 - math.sqrt(5.0))
+    r = np.sqrt(1.0 - down**2)
+    return np.c_[r * np.cos(golden * i), r * np.sin(golden * i), -down]
+
+
+def _direction(u, tolerance_deg) -> Direction:
+    trend, plunge = trend_plunge(u)
+    return Direction(trend, plunge, tolerance_deg)
+
+
+def perpendicular_fan(axis, count: int) -> np.ndarray:
+    """``count`` unit vectors over 180 degrees in the plane normal to ``axis``."""
+    axis = np.asarray(axis, dtype=np.float64) / np.linalg.norm(axis)
+    helper = np.array([0.0, 0.0, 1.0]) if abs(axis[2]) < 0.9 else np.array([1.0, 0.0, 0.0])
+    e1 = np.cross(axis, helper)
+    e1 /= np.linalg.norm(e1)
+    e2 = np.cross(axis, e1)
+    a = np.pi * np.arange(count) / count
+    return np.cos(a)[:, None] * e1 + np.sin(a)[:, None] * e2
+
+
+@dataclass
+class Experimental:
+    """A directional (or down-hole) experimental variogram: lag distances, gamma and pairs."""
+
+    distance: np.ndarray
+    gamma: np.ndarray
+    pairs: np.ndarray
+
+    def supported(self, min_pairs):
+        return (self.pairs >= min_pairs) & np.isfinite(self.gamma) & np.isfinite(self.distance)
+
+
+def _line_sets(acc, first_slot, count) -> Experimental:
+    s = acc.stats(0)[first_slot + 1:first_slot + count + 1]
+    n = s[:, k.COUNT]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return Experimental(np.where(n > 0, s[:, k.SUM_D] / n, np.nan),
+                            np.where(n > 0, s[:, k.SUM_SQ] / (2 * n), np.nan), n)
+
+
+def directional_experimentals(acc) -> list[Experimental]:
+    plan = acc.plan
+    bins = plan.directional_bins
+    return [_line_sets(acc, plan.layout[k.L_DIR_SLOT] + s * (bins.count + 1), bins.count)
+            for s in range(len(plan.sets.directions))]
+
+
+def downhole_experimental(acc) -> Experimental:
+    return _line_sets(acc, acc.plan.layout[k.L_DH_SLOT], acc.plan.sets.downhole.count)
+
+
+def nugget_from_downhole(ex: Experimental, min_pairs: int) -> float:
+    """The down-hole variogram's first supported lags (up to three) extrapolated to zero by a
+    pair-weighted straight line; clipped to [0, the first supported value]."""
+    ok = np.flatnonzero(ex.supported(min_pairs))[:3]
+    if len(ok) == 0:
+        return 0.0
+    if len(ok) == 1:
+        return float(max(0.0, 0.5 * ex.gamma[ok[0]]))
+    d, g, w = ex.distance[ok], ex.gamma[ok], ex.pairs[ok]
+    slope, intercept = np.polyfit(d, g, 1, w=np.sqrt(w))
+    return float(np.clip(intercept, 0.0, g[0]))
+
+
+def continuity_scores(experimentals, variance, min_pairs) -> np.ndarray:
+    """Mean gamma over the lags divided by the variance, lags without support filled from their
+    neighbours in the same direction (lower: more continuous; NaN: under three supported lags)."""
+    out = np.full(len(experimentals), np.nan)
+    for s, ex in enumerate(experimentals):
+        ok = ex.supported(min_pairs)
+        if ok.sum() < 3:
+            continue
+        lags = np.arange(len(ex.gamma))
+        filled = np.interp(lags, lags[ok], ex.gamma[ok])
+        out[s] = filled.mean() / variance
+    return out
+
+
+def smooth_on_sphere(u, scores, weights, radius_deg) -> np.ndarray:
+    """Weighted mean of axial scores within ``radius_deg`` of each direction."""
+    cos = np.abs(u @ u.T)
+    near = cos >= math.cos(math.radians(radius_deg))
+    ok = np.isfinite(scores)
+    w = near * (ok * weights)[None, :]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = (w @ np.where(ok, scores, 0.0)) / w.sum(axis=1)
+    out[~ok] = np.nan
+    return out
+
+
+# ------------------------------------------------------------------------------------------------
+# least squares on lag vectors
+# ------------------------------------------------------------------------------------------------
+
+
+def _rotation(rotvec) -> np.ndarray:
+    from scipy.spatial.transform import Rotation
+
+    return Rotation.from_rotvec(rotvec).as_matrix()
+
+
+def _unpack(p, n_struct, shape, axes0, nugget, fit_rotation):
+    """Parameters: the nugget when ``nugget`` is None; per structure (sill, major range,
+    semi/major, minor/semi); then a rotation vector when ``fit_rotation``."""
+    structures = []
+    at = 0
+    if nugget is None:
+        nugget, at = p[0], 1
+    for s in range(n_struct):
+        sill, a, q1, q2 = p[at + 4 * s:at + 4 * s + 4]
+        structures.append(Structure(shape, sill, (a, a * q1, a * q1 * q2)))
+    axes = axes0
+    if fit_rotation:
+        axes = axes0 @ _rotation(p[at + 4 * n_struct:at + 4 * n_struct + 3]).T
+    return Model(nugget, structures, axes)
+
+
+def fit_lag_vectors(h, gamma, weight, nugget, axes0, n_struct, shape, start, fit_rotation=False, max_range=None,
+                    nugget_start=None, tolerance=1e-8):
+    """Weighted least squares of a model on experimental values at lag vectors ``h`` (m, 3).
+
+    ``nugget``: fixed, or None to fit it from ``nugget_start``. ``start``: per structure (sill,
+    major, semi, minor), ranges in metres. Bounds: sills and nugget >= 0, ranges major >= semi-major
+    >= minor > 0 (as ratios in [0.02, 1]), rotation within 0.6 radian of ``axes0``; ``tolerance``
+    of scipy's least_squares (x, f and gradient). Returns (model,
+    weighted residual sum of squares, residuals)."""
+    from scipy.optimize import least_squares
+
+    h = np.asarray(h, dtype=np.float64)
+    sw = np.sqrt(np.asarray(weight, dtype=np.float64))
+    x0, lo, hi = [], [], []
+    if nugget is None:
+        x0, lo, hi = [max(float(nugget_start or 0.0), 0.0)], [0.0], [np.inf]
+    top = max_range if max_range else 10 * max(s[1] for s in start)
+    for sill, a, b, c in start:
+        q1 = min(max(b / a, 0.02), 1.0)
+        q2 = min(max(c / b, 0.02), 1.0)
+        x0 += [max(sill, 1e-9), min(max(a, 1e-3), top), q1, q2]
+        lo += [0.0, 1e-3, 0.02, 0.02]
+        hi += [np.inf, top, 1.0, 1.0]
+    if fit_rotation:
+        x0 += [0.0, 0.0, 0.0]
+        lo += [-0.6, -0.6, -0.6]
+        hi += [0.6, 0.6, 0.6]
+
+    def residual(p):
+        m = _unpack(p, n_struct, shape, axes0, nugget, fit_rotation)
+        return sw * (m.gamma(h) - gamma)
+
+    result = least_squares(residual, np.array(x0), bounds=(np.array(lo), np.array(hi)), x_scale="jac",
+                           max_nfev=100 * len(x0), xtol=tolerance, ftol=tolerance, gtol=tolerance)
+    model = _unpack(result.x, n_struct, shape, axes0, nugget, fit_rotation)
+    r = model.gamma(h) - gamma
+    return model, float(np.sum(weight * r * r)), r
+
+
+def _principal_data(experimentals, axes, min_pairs):
+    h, g, w, which = [], [], [], []
+    for a, ex in enumerate(experimentals):
+        ok = ex.supported(min_pairs) & (ex.distance > 0)
+        h.append(ex.distance[ok, None] * axes[a][None, :])
+        g.append(ex.gamma[ok])
+        w.append(ex.pairs[ok] / ex.distance[ok])
+        which.append(np.full(ok.sum(), a))
+    w = np.concatenate(w)
+    return np.concatenate(h), np.concatenate(g), w / w.mean(), np.concatenate(which)
+
+
+def _starts(experimentals, variance, nugget, n_struct, reach):
+    """Starting sills and ranges: where each principal variogram first reaches 90% of the sill."""
+    ranges = []
+    target = nugget + 0.9 * max(variance - nugget, 1e-12)
+    for ex in experimentals:
+        ok = np.isfinite(ex.gamma) & (ex.pairs > 0)
+        over = np.flatnonzero(ok & (ex.gamma >= target))
+        ranges.append(float(ex.distance[over[0]]) if len(over) else reach)
+    ranges = sorted([max(r, 1e-3) for r in ranges], reverse=True)
+    part = max(variance - nugget, 1e-12)
+    if n_struct == 1:
+        return [[(part, *ranges)]]
+    return [[(part / 2, *(r * f for r in ranges)), (part / 2, *ranges)] for f in (0.2, 0.4)]
+
+
+def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, reach):
+    """The final joint fit on the three principal variograms for each candidate (structure count,
+    shape); the choice by BIC. Returns (model, table of candidates, residual rows)."""
+    h, g, w, which = _principal_data(experimentals, axes, options.min_pairs)
+    if len(g) < 4:
+        raise FitError("fewer than four supported lags along the principal directions: too few pairs to fit. "
+                       "Try a longer --lag or fewer lags.")
+    counts = (1, 2) if options.structures == "auto" else (int(options.structures),)
+    candidates = []
+    for n_struct in counts:
+        for shape in options.shapes:
+            best = None
+            for start in _starts(experimentals, variance, nugget, n_struct, reach):
+                model, wrss, r = fit_lag_vectors(h, g, w, nugget, axes, n_struct, shape, start, max_range=reach)
+                if best is None or wrss < best[1]:
+                    best = (model, wrss, r)
+            n = len(g)
+            bic = n * math.log(max(best[1], 1e-300) / n) + 4 * n_struct * math.log(n)
+            candidates.append({"structures": n_struct, "shape": shape, "weighted_rss": best[1], "bic": bic,
+                               "model": best[0], "residuals": best[2]})
+    chosen = min(candidates, key=lambda c: c["bic"])
+    residuals = [{"axis": AXIS_NAMES[a], "distance": float(np.linalg.norm(hv)), "gamma": float(gv),
+                  "model": float(gv + rv), "residual": float(rv)}
+                 for a, hv, gv, rv in zip(which, h, g, chosen["residuals"])]
+    table = [{k2: v for k2, v in c.items() if k2 not in ("model", "residuals")} for c in candidates]
+    return chosen["model"], table, residuals
+
+
+# ------------------------------------------------------------------------------------------------
+# the whole fit
+# ------------------------------------------------------------------------------------------------
+
+
+@dataclass
+class FitResult:
+    model: Model
+    variance: float
+    nugget_downhole: float
+    pairs_used: int
+    lag_m: float
+    search: dict
+    candidates: list
+    residuals: list
+    principal: list  # Experimental along major, semi-major, minor
+    downhole: Experimental
+    bootstrap: dict | None = None
+
+
+def default_lag(xyz, hole, composite_length):
+    """Half the median distance from each hole's middle to the nearest other hole's middle, at least
+    twice the composite length."""
+    from scipy.spatial import cKDTree
+
+    ids = np.unique(hole)
+    mids = np.array([xyz[hole == h].mean(axis=0) for h in ids]) if len(ids) > 1 else xyz[:1]
+    spacing = 0.0
+    if len(mids) > 1:
+        d, _ = cKDTree(mids).query(mids, k=2)
+        spacing = float(np.median(d[:, 1]))
+    extent = float(np.max(xyz.max(axis=0) - xyz.min(axis=0)))
+    lag = max(0.5 * spacing, 2.0 * (composite_length or 0.0), extent / 60.0, 1e-3)
+    return float(np.round(lag, 1) if lag >= 1 else lag)
+
+
+class VariogramFitter:
+    """Find the principal directions and fit the model of one variable.
+
+    Parameters
+    ----------
+    options : FitOptions
+
+    ``fit(xyz, values, hole, depth, composite_length)`` returns the fitter with ``result_`` (a
+    FitResult). A worked call on a synthetic program with a known truth is
+    ``synthetic_holes.recovery.recover``; tests/engine/test_fit.py checks it over ten seeds.
+    """
+
+    def __init__(self, options: FitOptions | None = None):
+        self.options = options or FitOptions()
+
+    def fit(self, xyz, values, hole, depth, composite_length=None, progress=None):
+        o = self.options
+        xyz = np.ascontiguousarray(xyz, dtype=np.float64)
+        values = np.asarray(values, dtype=np.float64)
+        hole = np.asarray(hole, dtype=np.int64)
+        depth = np.asarray(depth, dtype=np.float64)
+        keep = np.isfinite(values) & np.isfinite(xyz).all(axis=1)
+        xyz, values, hole, depth = xyz[keep], values[keep], hole[keep], depth[keep]
+        if len(values) < 10:
+            raise FitError(f"{len(values)} composites with a value: too few to fit a variogram.")
+        variance = float(np.var(values, ddof=1))
+        if not variance > 0:
+            raise FitError("the values do not vary: there is no variogram to fit.")
+        step = progress or (lambda name: None)
+        lag = o.lag_m or default_lag(xyz, hole, composite_length)
+        bins = LagBins(lag, o.lags)
+        reach = bins.reach_m
+        dh_lag = composite_length if composite_length and composite_length > 0 else lag / 4
+        downhole_bins = LagBins(dh_lag, max(4, int(math.ceil(min(reach, 10 * dh_lag) / dh_lag))))
+        index = PairIndex(xyz, hole, depth, max_distance_m=max(reach, downhole_bins.reach_m) * 1.5)
+        self.index_ = index
+
+        # 1-2: down-hole and the global search in one pass
+        step("searching directions")
+        u = fibonacci_directions(o.search_directions)
+        sets = Sets(directions=[_direction(v, o.search_tolerance_deg) for v in u], directional_bins=bins,
+                    downhole=downhole_bins)
+        acc = accumulate(xyz, values, sets, hole=hole, depth=depth, index=index, threads=o.threads)
+        downhole = downhole_experimental(acc)
+        nugget = nugget_from_downhole(downhole, o.min_pairs)
+        nugget = min(nugget, 0.95 * variance)
+        search_ex = directional_experimentals(acc)
+        scores = continuity_scores(search_ex, variance, o.min_pairs)
+        support = np.array([ex.pairs.sum() for ex in search_ex])
+        if not np.isfinite(scores).any():
+            raise FitError("no search direction has three lags with enough pairs: too few composites or "
+                           "lags too short for the drill spacing. Try a longer --lag.")
+        smooth = smooth_on_sphere(u, scores, np.sqrt(support), o.smoothing_deg)
+        major = u[int(np.nanargmin(smooth))]
+
+        # 3: the semi-major axis in the plane normal to the major
+        step("fanning about the major axis")
+        fan_u = perpendicular_fan(major, o.fan_directions)
+        sets = Sets(directions=[_direction(v, o.search_tolerance_deg) for v in fan_u], directional_bins=bins)
+        fan_ex = directional_experimentals(accumulate(xyz, values, sets, index=index, hole=hole, depth=depth,
+                                                      threads=o.threads))
+        fan_scores = continuity_scores(fan_ex, variance, o.min_pairs)
+        if not np.isfinite(fan_scores).any():
+            raise FitError("no direction across the major axis has enough pairs to choose the semi-major axis.")
+        fan_support = np.array([ex.pairs.sum() for ex in fan_ex])
+        fan_smooth = smooth_on_sphere(fan_u, fan_scores, np.sqrt(fan_support), o.smoothing_deg)
+        semi = fan_u[int(np.nanargmin(fan_smooth))]
+        axes0 = orientation_axes(major, semi)
+
+        # 4-5: principal fit, refinement on the volume, final fit
+        step("refining the axes on the variogram volume")
+        model, principal = self._refine(xyz, values, hole, depth, index, axes0, variance, nugget, bins, None)
+        step("fitting the model")
+        final, candidates, residuals = choose_and_fit(principal, model.axes, variance, nugget, o, reach)
+        result = FitResult(final, variance, nugget, int(sum(ex.pairs.sum() for ex in principal)), lag,
+                           {"directions": int(len(u)), "tolerance_deg": o.search_tolerance_deg,
+                            "best_score": float(np.nanmin(smooth)), "worst_score": float(np.nanmax(smooth)),
+                            "initial_axes": axes0.tolist(), "fan_directions": int(len(fan_u))},
+                           candidates, residuals, principal, downhole)
+        if o.bootstrap > 0:
+            step(f"bootstrap of {o.bootstrap} replicates")
+            result.bootstrap = self._bootstrap(xyz, values, hole, depth, index, result, bins, downhole_bins)
+        self.result_ = result
+        return self
+
+    def _principal_pass(self, xyz, values, hole, depth, index, axes, bins, weights=None, volume=None,
+                        downhole=None):
+        sets = Sets(directions=[_direction(a, self.options.principal_tolerance_deg) for a in axes],
+                    directional_bins=bins, volume=volume, downhole=downhole,
+                    max_distance_m=bins.reach_m if volume is not None else None)
+        return accumulate(xyz, values, sets, hole=hole, depth=depth, index=index, threads=self.options.threads,
+                          weights=weights)
+
+    def _refine(self, xyz, values, hole, depth, index, axes0, variance, nugget, bins, weights):
+        o = self.options
+        reach = bins.reach_m
+        nx, ny, nz = o.volume_cells
+        volume = self._volume_grid(reach)
+        acc = self._principal_pass(xyz, values, hole, depth, index, axes0, bins, weights, volume)
+        principal = directional_experimentals(acc)
+        n_struct = 1 if o.structures == "1" else 2
+        h, g, w, _ = _principal_data(principal, axes0, o.min_pairs)
+        if len(g) < 4:
+            raise FitError("fewer than four supported lags along the principal directions: too few pairs.")
+        best = None
+        for start in _starts(principal, variance, nugget, n_struct, reach):
+            fitted = fit_lag_vectors(h, g, w, nugget, axes0, n_struct, o.shapes[0], start, max_range=reach)
+            if best is None or fitted[1] < best[1]:
+                best = fitted
+        first = best[0]
+        # the volume: every stored cell with enough pairs, at its centre lag vector
+        gamma_v, counts = acc.volume(0)
+        cz, cy, cx = np.meshgrid(np.arange(-nz, nz + 1) * volume.cell_m[2], np.arange(-ny, ny + 1) * volume.cell_m[1],
+                                 np.arange(-nx, nx + 1) * volume.cell_m[0], indexing="ij")
+        hv = np.c_[cx.ravel(), cy.ravel(), cz.ravel()]
+        ok = (counts.ravel() >= o.min_pairs) & np.isfinite(gamma_v.ravel()) & (np.linalg.norm(hv, axis=1) > 0)
+        ok &= np.linalg.norm(hv, axis=1) <= reach
+        ok &= (cz.ravel() < 0) | ((cz.ravel() == 0) & ((cy.ravel() < 0) | ((cy.ravel() == 0) & (cx.ravel() < 0))))
+        axes = axes0
+        if ok.sum() >= 20:
+            hv, gv, nv = hv[ok], gamma_v.ravel()[ok], counts.ravel()[ok]
+            wv = nv / np.linalg.norm(hv, axis=1)
+            start = [(s.sill, *s.ranges_m) for s in first.structures]
+            refined, _, _ = fit_lag_vectors(hv, gv, wv / wv.mean(), nugget, axes0, n_struct, o.shapes[0], start,
+                                            fit_rotation=True, max_range=reach)
+            axes = refined.axes
+            acc = self._principal_pass(xyz, values, hole, depth, index, axes, bins, weights)
+            principal = directional_experimentals(acc)
+        return Model(nugget, first.structures, axes), principal
+
+    def _bootstrap(self, xyz, values, hole, depth, index, result, bins, downhole_bins):
+        """All replicates' pair sums in one pass (PairIndex.run_replicates), then per replicate: the
+        nugget from its down-hole variogram, its axes from a fit with rotation on its variogram
+        volume, and its ranges from the joint fit on its directional variograms along the fitted
+        axes, with the fitted model's structure count and shape."""
+        o = self.options
+        rng = np.random.default_rng(o.seed)
+        ids, code = np.unique(hole, return_inverse=True)
+        draws = rng.multinomial(len(ids), np.full(len(ids), 1.0 / len(ids)), size=o.bootstrap).T
+        weights = draws[code].astype(np.float64)
+        main = result.model
+        reach = bins.reach_m
+        volume = self._volume_grid(reach)
+        sets = Sets(directions=[_direction(a, o.principal_tolerance_deg) for a in main.axes], directional_bins=bins,
+                    downhole=downhole_bins, volume=volume, max_distance_m=max(reach, downhole_bins.reach_m))
+        plan = sets.plan()
+        sums = index.run_replicates(values, plan, weights, threads=o.threads)
+        width = bins.count + 1
+        dir_first = [plan.layout[k.L_DIR_SLOT] + a * width for a in range(3)]
+        dh_first = plan.layout[k.L_DH_SLOT]
+        hv, vol_slots = _stored_volume_cells(volume, plan.layout[k.L_VOL_SLOT], reach)
+        shape = main.structures[0].shape
+        n_struct = len(main.structures)
+        start = [(s.sill, *s.ranges_m) for s in main.structures]
+        one = FitOptions(**{**asdict(o), "structures": str(n_struct), "shapes": (shape,)})
+        angles = {name: [] for name in AXIS_NAMES}
+        ranges = {name: [] for name in AXIS_NAMES}
+        failed = 0
+
+        def line(first, count, distance, r):
+            n = sums[first + 1:first + count + 1, 0, r]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                g = np.where(n > 0, sums[first + 1:first + count + 1, 1, r] / (2 * n), np.nan)
+            return Experimental(distance, g, n)
+
+        for r in range(o.bootstrap):
+            try:
+                used = weights[:, r] > 0
+                variance = float(np.cov(values[used], aweights=weights[used, r]))
+                dh = line(dh_first, downhole_bins.count, result.downhole.distance, r)
+                nugget = min(nugget_from_downhole(dh, o.min_pairs), 0.95 * variance)
+                n_v = sums[vol_slots, 0, r]
+                ok = n_v >= o.min_pairs
+                if ok.sum() < 20:
+                    raise FitError("too few volume cells")
+                with np.errstate(invalid="ignore", divide="ignore"):
+                    g_v = sums[vol_slots, 1, r][ok] / (2 * n_v[ok])
+                w_v = n_v[ok] / np.linalg.norm(hv[ok], axis=1)
+                refined, _, _ = fit_lag_vectors(hv[ok], g_v, w_v / w_v.mean(), nugget, main.axes, n_struct, shape,
+                                                start, fit_rotation=True, max_range=reach)
+                principal = [line(f, bins.count, ex.distance, r) for f, ex in zip(dir_first, result.principal)]
+                fitted, _, _ = choose_and_fit(principal, main.axes, variance, nugget, one, reach)
+            except (FitError, ValueError, np.linalg.LinAlgError):
+                failed += 1
+                continue
+            for a, name in enumerate(AXIS_NAMES):
+                cos = abs(float(refined.axes[a] @ main.axes[a]))
+                angles[name].append(math.degrees(math.acos(min(1.0, cos))))
+                ranges[name].append(max(s.ranges_m[a] for s in fitted.structures))
+        done = o.bootstrap - failed
+        out = {"replicates": o.bootstrap, "failed": failed,
+               "method": "holes resampled with replacement, each weighted by its draws (copies of a hole do not "
+                         "pair with each other); per replicate the axes from a fit with rotation on its variogram "
+                         "volume, the ranges from its directional variograms along the fitted axes"}
+        if done >= 2:
+            out["axis_angle_deg"] = {n: {"median": float(np.median(v)), "p95": float(np.percentile(v, 95))}
+                                     for n, v in angles.items()}
+            out["range_m"] = {n: {"p2_5": float(np.percentile(v, 2.5)), "median": float(np.median(v)),
+                                  "p97_5": float(np.percentile(v, 97.5))} for n, v in ranges.items()}
+            out["samples"] = {"axis_angle_deg": {n: list(map(float, v)) for n, v in angles.items()},
+                              "range_m": {n: list(map(float, v)) for n, v in ranges.items()}}
+        return out
+
+    def _volume_grid(self, reach):
+        nx, ny, nz = self.options.volume_cells
+        return VolumeGrid((reach / (nx + 0.5), reach / (ny + 0.5), reach / (nz + 0.5)), (nx, ny, nz))
+
+
+def _stored_volume_cells(volume, first_slot, reach):
+    """Lag vectors (m, 3) and slots of the stored half of a volume grid's cells (iz < 0, or iz = 0
+    with iy < 0, or iy = 0 with ix < 0), within ``reach`` and not at zero."""
+    nx, ny, nz = volume.half_counts
+    cx, cy, cz = volume.cell_m
+    iz, iy, ix = np.meshgrid(-np.arange(nz + 1), np.arange(-ny, ny + 1), np.arange(-nx, nx + 1), indexing="ij")
+    iz, iy, ix = iz.ravel(), iy.ravel(), ix.ravel()
+    slots = first_slot + ((-iz) * (2 * ny + 1) + (iy + ny)) * (2 * nx + 1) + (ix + nx)
+    lower = (iz < 0) | ((iz == 0) & ((iy < 0) | ((iy == 0) & (ix < 0))))
+    h = np.c_[ix * cx, iy * cy, iz * cz].astype(np.float64)
+    keep = lower & (np.linalg.norm(h, axis=1) <= reach)
+    return h[keep], slots[keep]
+
+
+def orientation_axes(major, semi) -> np.ndarray:
+    """Rows major, semi-major (made orthogonal to the major), minor = major x semi-major."""
+    major = np.asarray(major, dtype=np.float64)
+    major = major / np.linalg.norm(major)
+    semi = np.asarray(semi, dtype=np.float64)
+    semi = semi - (semi @ major) * major
+    semi /= np.linalg.norm(semi)
+    return np.stack([major, semi, np.cross(major, semi)])
+
+
+def model_json(result: FitResult, variable: str, domain: str | None) -> dict:
+    """``model.json`` (../shared/INTERFACE.md) with the fit diagnostics and bootstrap intervals."""
+    m = result.model
+    out = {"schema": "drillaxis.model/1", "variable": variable, "domain": domain, "variance": result.variance,
+           "pairs_used": result.pairs_used}
+    out.update(m.to_json())
+    out["fit"] = {
+        "lag_m": result.lag_m,
+        "nugget_from": "down-hole variogram, first lags extrapolated to zero",
+        "weights": "pairs / mean lag distance, normalised to mean 1",
+        "criterion": "BIC = n ln(weighted RSS / n) + parameters ln n",
+        "candidates": result.candidates,
+        "search": result.search,
+        "residuals": result.residuals,
+        "problems": m.problems(),
+    }
+    if result.bootstrap is not None:
+        b = {key: v for key, v in result.bootstrap.items() if key != "samples"}
+        out["bootstrap"] = b
+    return out
