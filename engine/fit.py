@@ -27,8 +27,8 @@ from dataclasses import asdict, dataclass
 import numpy as np
 
 from .errors import FitError
-from .model import AXIS_NAMES, Model, Structure, unit_variogram
-from .orientation import orientation_from_axes, trend_plunge, vector_from_trend_plunge
+from .model import AXIS_NAMES, Model, Structure
+from .orientation import trend_plunge
 from .pairs import PairIndex
 from .pairs import _kernels as k
 from .variogram import Direction, LagBins, Sets, VolumeGrid, accumulate
@@ -340,19 +340,13 @@ class VariogramFitter:
         reach = bins.reach_m
         dh_lag = composite_length if composite_length and composite_length > 0 else lag / 4
         downhole_bins = LagBins(dh_lag, max(4, int(math.ceil(min(reach, 10 * dh_lag) / dh_lag))))
-        index = PairIndex(xyz, hole, depth, max_distance_m=max(reach, downhole_bins.reach_m) * 1.5)
+        index = PairIndex(xyz, hole, depth, max_distance_m=max(reach, downhole_bins.reach_m))
         self.index_ = index
 
-        # 1-2: down-hole and the global search in one pass
+        # 2: the global search; a light pass (pair counts and squared differences only)
         step("searching directions")
         u = fibonacci_directions(o.search_directions)
-        sets = Sets(directions=[_direction(v, o.search_tolerance_deg) for v in u], directional_bins=bins,
-                    downhole=downhole_bins)
-        acc = accumulate(xyz, values, sets, hole=hole, depth=depth, index=index, threads=o.threads)
-        downhole = downhole_experimental(acc)
-        nugget = nugget_from_downhole(downhole, o.min_pairs)
-        nugget = min(nugget, 0.95 * variance)
-        search_ex = directional_experimentals(acc)
+        search_ex = self._light_pass(values, index, u, bins)
         scores = continuity_scores(search_ex, variance, o.min_pairs)
         support = np.array([ex.pairs.sum() for ex in search_ex])
         if not np.isfinite(scores).any():
@@ -364,9 +358,7 @@ class VariogramFitter:
         # 3: the semi-major axis in the plane normal to the major
         step("fanning about the major axis")
         fan_u = perpendicular_fan(major, o.fan_directions)
-        sets = Sets(directions=[_direction(v, o.search_tolerance_deg) for v in fan_u], directional_bins=bins)
-        fan_ex = directional_experimentals(accumulate(xyz, values, sets, index=index, hole=hole, depth=depth,
-                                                      threads=o.threads))
+        fan_ex = self._light_pass(values, index, fan_u, bins)
         fan_scores = continuity_scores(fan_ex, variance, o.min_pairs)
         if not np.isfinite(fan_scores).any():
             raise FitError("no direction across the major axis has enough pairs to choose the semi-major axis.")
@@ -375,9 +367,11 @@ class VariogramFitter:
         semi = fan_u[int(np.nanargmin(fan_smooth))]
         axes0 = orientation_axes(major, semi)
 
-        # 4-5: principal fit, refinement on the volume, final fit
+        # 1 and 4-5: the nugget (down the holes), principal fit, refinement on the volume, final fit
         step("refining the axes on the variogram volume")
-        model, principal = self._refine(xyz, values, hole, depth, index, axes0, variance, nugget, bins, None)
+        model, principal, downhole = self._refine(xyz, values, hole, depth, index, axes0, variance, bins,
+                                                  downhole_bins)
+        nugget = model.nugget
         step("fitting the model")
         final, candidates, residuals = choose_and_fit(principal, model.axes, variance, nugget, o, reach)
         result = FitResult(final, variance, nugget, int(sum(ex.pairs.sum() for ex in principal)), lag,
@@ -391,20 +385,46 @@ class VariogramFitter:
         self.result_ = result
         return self
 
+    def _light_pass(self, values, index, directions, bins):
+        """Directional variograms (lag-bin centres as distances) from pair counts and squared
+        differences only: the replicate kernel with one replicate of unit weights."""
+        sets = Sets(directions=[_direction(v, self.options.search_tolerance_deg) for v in directions],
+                    directional_bins=bins)
+        plan = sets.plan()
+        sums = index.run_replicates(values, plan, np.ones((index.point_count, 1)), threads=self.options.threads)
+        width = bins.count + 1
+        centres = np.arange(1, bins.count + 1) * bins.lag_m
+        out = []
+        for s in range(len(directions)):
+            first = plan.layout[k.L_DIR_SLOT] + s * width
+            n = sums[first + 1:first + width, 0, 0]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                out.append(Experimental(centres, np.where(n > 0, sums[first + 1:first + width, 1, 0] / (2 * n),
+                                                          np.nan), n))
+        return out
+
     def _principal_pass(self, xyz, values, hole, depth, index, axes, bins, weights=None, volume=None,
                         downhole=None):
         sets = Sets(directions=[_direction(a, self.options.principal_tolerance_deg) for a in axes],
                     directional_bins=bins, volume=volume, downhole=downhole,
-                    max_distance_m=bins.reach_m if volume is not None else None)
+                    max_distance_m=max(bins.reach_m, downhole.reach_m if downhole else 0.0) if volume is not None
+                    else None)
         return accumulate(xyz, values, sets, hole=hole, depth=depth, index=index, threads=self.options.threads,
                           weights=weights)
 
-    def _refine(self, xyz, values, hole, depth, index, axes0, variance, nugget, bins, weights):
+    def _refine(self, xyz, values, hole, depth, index, axes0, variance, bins, downhole_bins):
+        """One pass (principal directions, down the holes, the volume): the nugget, a fit on the
+        principal variograms, then rotation, sills and ranges on the volume; a second pass gives the
+        principal variograms along the refined axes. Returns (model, principal, down-hole)."""
         o = self.options
         reach = bins.reach_m
         nx, ny, nz = o.volume_cells
         volume = self._volume_grid(reach)
-        acc = self._principal_pass(xyz, values, hole, depth, index, axes0, bins, weights, volume)
+        acc = self._principal_pass(xyz, values, hole, depth, index, axes0, bins, None, volume, downhole_bins)
+        self.volume_ = acc  # the variogram volume (and the first principal sets) for the outputs
+        self.principal_ = acc
+        downhole = downhole_experimental(acc)
+        nugget = min(nugget_from_downhole(downhole, o.min_pairs), 0.95 * variance)
         principal = directional_experimentals(acc)
         n_struct = 1 if o.structures == "1" else 2
         h, g, w, _ = _principal_data(principal, axes0, o.min_pairs)
@@ -432,9 +452,10 @@ class VariogramFitter:
             refined, _, _ = fit_lag_vectors(hv, gv, wv / wv.mean(), nugget, axes0, n_struct, o.shapes[0], start,
                                             fit_rotation=True, max_range=reach)
             axes = refined.axes
-            acc = self._principal_pass(xyz, values, hole, depth, index, axes, bins, weights)
+            acc = self._principal_pass(xyz, values, hole, depth, index, axes, bins, downhole=downhole_bins)
+            self.principal_ = acc  # along the refined axes, with the down-hole set
             principal = directional_experimentals(acc)
-        return Model(nugget, first.structures, axes), principal
+        return Model(nugget, first.structures, axes), principal, downhole
 
     def _bootstrap(self, xyz, values, hole, depth, index, result, bins, downhole_bins):
         """All replicates' pair sums in one pass (PairIndex.run_replicates), then per replicate: the

@@ -79,7 +79,7 @@ def test_desurvey_methods(write_tables, tmp_path, capsys, method):
     assert code == 0
 
 
-@pytest.mark.parametrize("command", ["check", "desurvey", "composite", "variogram", "demo"])
+@pytest.mark.parametrize("command", ["check", "desurvey", "composite", "variogram", "fit", "run", "demo"])
 def test_help_of_each_command(command, capsys):
     with pytest.raises(SystemExit) as info:
         main([command, "--help"])
@@ -176,9 +176,11 @@ def test_demo_runs(tmp_path, capsys):
     code, out, err = run(["demo", "--out", tmp_path, "--seed", "3"], capsys)
     assert code == 0, err
     for name in ("data/collars.csv", "data/surveys.csv", "data/intervals.csv", "data/truth.json",
-                 "findings.csv", "traces.csv", "samples.csv"):
+                 "findings.csv", "traces.csv", "samples.csv", "composites.csv", "model.json", "pattern.json",
+                 "variograms.csv", "volume.npz", "fit_variograms.csv"):
         assert (tmp_path / name).exists(), name
     assert "0 error(s)" in out and "major axis trend" in out
+    assert "truth against fit" in out and "range ratio" in out and "competent or qualified person" in out
 
 
 def test_progress_bar_on_a_terminal_only(write_tables, tmp_path):

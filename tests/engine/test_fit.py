@@ -2,7 +2,6 @@
 from synthetic_holes (invented Tarn Hill programs; tolerances from the issue, stated below)."""
 
 import json
-import math
 import subprocess
 import sys
 from pathlib import Path
