@@ -145,6 +145,8 @@ def _fit_options(parser: argparse.ArgumentParser):
                        help="transform the values before fitting (default: none)")
     group.add_argument("--bootstrap", type=int, default=50, metavar="N",
                        help="hole-wise bootstrap replicates for the uncertainty (default 50; 0 leaves it out)")
+    group.add_argument("--bootstrap-block", type=float, metavar="M", help="resample blocks of holes whose tops "
+                       "share an M metre square in plan (default: half the fitted major range; 0: single holes)")
     group.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
     group.add_argument("--threads", type=int, metavar="N", help="worker threads (default: all cores)")
 
@@ -625,7 +627,8 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, console: C
     elif args.transform == "normal-score":
         values = normal_scores(values)
     options = FitOptions(lag_m=args.lag, lags=args.lags, structures=args.structures, bootstrap=args.bootstrap,
-                         seed=args.seed, threads=args.threads)
+                         bootstrap_block_m=getattr(args, "bootstrap_block", None), seed=args.seed,
+                         threads=args.threads)
     fitter = VariogramFitter(options).fit(xyz, values, hole, depth, composite_length=length, progress=step)
     result = fitter.result_
     model = result.model
@@ -643,14 +646,20 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, console: C
     data["caution"] = CAUTION
     write_json(data, out / "model.json")
     write_json(pattern, out / "pattern.json")
+    from .fit import cone_directions
+
     rows = []
     for a, (name, ex) in enumerate(zip(("major", "semi_major", "minor"), result.principal)):
-        lag_gamma = model.gamma_along(model.axes[a], np.nan_to_num(ex.distance))
+        d = np.nan_to_num(ex.distance)
+        cone = cone_directions(model.axes[a], options.principal_tolerance_deg)
+        in_cone = model.gamma((d[:, None, None] * cone[None, :, :]).reshape(-1, 3)).reshape(len(d), -1).mean(axis=1)
+        known = np.isfinite(ex.distance)
         rows.append(pd.DataFrame({"set": name, "distance": ex.distance, "pairs": ex.pairs, "gamma": ex.gamma,
-                                  "model": np.where(np.isfinite(ex.distance), lag_gamma, np.nan)}))
+                                  "model": np.where(known, model.gamma_along(model.axes[a], d), np.nan),
+                                  "model_in_cone": np.where(known, in_cone, np.nan)}))
     dh = result.downhole
     rows.append(pd.DataFrame({"set": "downhole", "distance": dh.distance, "pairs": dh.pairs, "gamma": dh.gamma,
-                              "model": np.nan}))
+                              "model": np.nan, "model_in_cone": np.nan}))
     write_csv(pd.concat(rows, ignore_index=True), out / "fit_variograms.csv")
     _write_variograms(fitter.principal_, fitter.volume_, out)
     _model_summary(data, out, console)

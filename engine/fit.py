@@ -49,6 +49,7 @@ class FitOptions:
     shapes: tuple = ("spherical", "exponential")
     min_pairs: int = 30
     bootstrap: int = 50
+    bootstrap_block_m: float | None = None  # None: blocks of holes half the major range wide; 0: single holes
     seed: int = 0
     threads: int | None = None
     volume_cells: tuple = (12, 12, 12)
@@ -206,20 +207,55 @@ def fit_lag_vectors(h, gamma, weight, nugget, axes0, n_struct, shape, start, fit
 
     def residual(p):
         m = _unpack(p, n_struct, shape, axes0, nugget, fit_rotation)
-        return sw * (m.gamma(h) - gamma)
+        return sw * (_model_values(m, h) - gamma)
 
     result = least_squares(residual, np.array(x0), bounds=(np.array(lo), np.array(hi)), x_scale="jac",
                            max_nfev=100 * len(x0), xtol=tolerance, ftol=tolerance, gtol=tolerance)
     model = _unpack(result.x, n_struct, shape, axes0, nugget, fit_rotation)
-    r = model.gamma(h) - gamma
+    r = _model_values(model, h) - gamma
     return model, float(np.sum(weight * r * r)), r
 
 
-def _principal_data(experimentals, axes, min_pairs):
+def _model_values(model, h):
+    """The model at lag vectors (m, 3), or its mean over the K lag vectors of each row (m, K, 3):
+    the directional cone of an experimental value."""
+    if h.ndim == 2:
+        return model.gamma(h)
+    return model.gamma(h.reshape(-1, 3)).reshape(h.shape[:2]).mean(axis=1)
+
+
+def cone_directions(axis, tolerance_deg, rings: int = 3, per_ring: int = 8) -> np.ndarray:
+    """Unit vectors spread evenly over the cone of half-angle ``tolerance_deg`` about ``axis``: the
+    axis itself is the centre of ``rings`` rings of equal solid angle with ``per_ring`` directions
+    each (every direction stands for the same share of the cone)."""
+    axis = np.asarray(axis, dtype=np.float64)
+    axis = axis / np.linalg.norm(axis)
+    helper = np.array([0.0, 0.0, 1.0]) if abs(axis[2]) < 0.9 else np.array([1.0, 0.0, 0.0])
+    e1 = np.cross(axis, helper)
+    e1 /= np.linalg.norm(e1)
+    e2 = np.cross(axis, e1)
+    cos_a = math.cos(math.radians(tolerance_deg))
+    out = []
+    for j in range(rings):
+        c = 1.0 - (1.0 - cos_a) * (j + 0.5) / rings
+        s_ = math.sqrt(max(0.0, 1.0 - c * c))
+        for q in range(per_ring):
+            phi = 2.0 * math.pi * (q + 0.5 * (j % 2)) / per_ring
+            out.append(c * axis + s_ * (math.cos(phi) * e1 + math.sin(phi) * e2))
+    return np.array(out)
+
+
+def _principal_data(experimentals, axes, min_pairs, tolerance_deg=None):
+    """Lag vectors, values, weights and axis of every supported lag. With ``tolerance_deg`` each
+    lag's vectors span its directional cone (m, K, 3), so that the model is compared with what the
+    cone holds: pairs up to the tolerance off the axis, where the ranges are shorter (or longer)."""
     h, g, w, which = [], [], [], []
     for a, ex in enumerate(experimentals):
         ok = ex.supported(min_pairs) & (ex.distance > 0)
-        h.append(ex.distance[ok, None] * axes[a][None, :])
+        if tolerance_deg:
+            h.append(ex.distance[ok, None, None] * cone_directions(axes[a], tolerance_deg)[None, :, :])
+        else:
+            h.append(ex.distance[ok, None] * axes[a][None, :])
         g.append(ex.gamma[ok])
         w.append(ex.pairs[ok] / ex.distance[ok])
         which.append(np.full(ok.sum(), a))
@@ -245,7 +281,7 @@ def _starts(experimentals, variance, nugget, n_struct, reach):
 def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, reach):
     """The final joint fit on the three principal variograms for each candidate (structure count,
     shape); the choice by BIC. Returns (model, table of candidates, residual rows)."""
-    h, g, w, which = _principal_data(experimentals, axes, options.min_pairs)
+    h, g, w, which = _principal_data(experimentals, axes, options.min_pairs, options.principal_tolerance_deg)
     if len(g) < 4:
         raise FitError("fewer than four supported lags along the principal directions: too few pairs to fit. "
                        "Try a longer --lag or fewer lags.")
@@ -263,7 +299,7 @@ def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, r
             candidates.append({"structures": n_struct, "shape": shape, "weighted_rss": best[1], "bic": bic,
                                "model": best[0], "residuals": best[2]})
     chosen = min(candidates, key=lambda c: c["bic"])
-    residuals = [{"axis": AXIS_NAMES[a], "distance": float(np.linalg.norm(hv)), "gamma": float(gv),
+    residuals = [{"axis": AXIS_NAMES[a], "distance": float(np.linalg.norm(hv[0])), "gamma": float(gv),
                   "model": float(gv + rv), "residual": float(rv)}
                  for a, hv, gv, rv in zip(which, h, g, chosen["residuals"])]
     table = [{k2: v for k2, v in c.items() if k2 not in ("model", "residuals")} for c in candidates]
@@ -427,7 +463,7 @@ class VariogramFitter:
         nugget = min(nugget_from_downhole(downhole, o.min_pairs), 0.95 * variance)
         principal = directional_experimentals(acc)
         n_struct = 1 if o.structures == "1" else 2
-        h, g, w, _ = _principal_data(principal, axes0, o.min_pairs)
+        h, g, w, _ = _principal_data(principal, axes0, o.min_pairs, o.principal_tolerance_deg)
         if len(g) < 4:
             raise FitError("fewer than four supported lags along the principal directions: too few pairs.")
         best = None
@@ -464,16 +500,19 @@ class VariogramFitter:
         axes, with the fitted model's structure count and shape."""
         o = self.options
         rng = np.random.default_rng(o.seed)
-        ids, code = np.unique(hole, return_inverse=True)
+        main = result.model
+        group = hole
+        if o.bootstrap_block_m != 0:
+            group = _hole_blocks(xyz, hole, o.bootstrap_block_m or 0.5 * max(s.ranges_m[0] for s in main.structures))
+        ids, code = np.unique(group, return_inverse=True)
         draws = rng.multinomial(len(ids), np.full(len(ids), 1.0 / len(ids)), size=o.bootstrap).T
         weights = draws[code].astype(np.float64)
-        main = result.model
         reach = bins.reach_m
         volume = self._volume_grid(reach)
         sets = Sets(directions=[_direction(a, o.principal_tolerance_deg) for a in main.axes], directional_bins=bins,
                     downhole=downhole_bins, volume=volume, max_distance_m=max(reach, downhole_bins.reach_m))
         plan = sets.plan()
-        sums = index.run_replicates(values, plan, weights, threads=o.threads)
+        sums = index.run_replicates(values, plan, weights, threads=o.threads, group=code)
         width = bins.count + 1
         dir_first = [plan.layout[k.L_DIR_SLOT] + a * width for a in range(3)]
         dh_first = plan.layout[k.L_DH_SLOT]
@@ -517,8 +556,11 @@ class VariogramFitter:
                 angles[name].append(math.degrees(math.acos(min(1.0, cos))))
                 ranges[name].append(max(s.ranges_m[a] for s in fitted.structures))
         done = o.bootstrap - failed
-        out = {"replicates": o.bootstrap, "failed": failed,
-               "method": "holes resampled with replacement, each weighted by its draws (copies of a hole do not "
+        block = None if o.bootstrap_block_m == 0 else float(o.bootstrap_block_m or
+                                                              0.5 * max(s.ranges_m[0] for s in main.structures))
+        unit = "single holes" if block is None else f"blocks of holes whose tops share a {block:.1f} m square in plan"
+        out = {"replicates": o.bootstrap, "failed": failed, "resampled": unit, "groups": int(len(ids)),
+               "method": f"{unit} resampled with replacement, each weighted by its draws (copies of a group do not "
                          "pair with each other); per replicate the axes from a fit with rotation on its variogram "
                          "volume, the ranges from its directional variograms along the fitted axes"}
         if done >= 2:
@@ -533,6 +575,18 @@ class VariogramFitter:
     def _volume_grid(self, reach):
         nx, ny, nz = self.options.volume_cells
         return VolumeGrid((reach / (nx + 0.5), reach / (ny + 0.5), reach / (nz + 0.5)), (nx, ny, nz))
+
+
+def _hole_blocks(xyz, hole, block_m):
+    """Each point's block: holes grouped by the square of ``block_m`` in plan holding their top."""
+    order = np.lexsort((-xyz[:, 2], hole))
+    h = hole[order]
+    first = np.r_[True, h[1:] != h[:-1]]
+    tops = xyz[order][first]
+    cell = np.floor((tops[:, :2] - tops[:, :2].min(axis=0)) / max(block_m, 1e-9)).astype(np.int64)
+    block_of_hole = cell[:, 0] * (cell[:, 1].max() + 1) + cell[:, 1]
+    _, position = np.unique(hole, return_inverse=True)
+    return block_of_hole[position]
 
 
 def _stored_volume_cells(volume, first_slot, reach):

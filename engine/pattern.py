@@ -6,7 +6,8 @@ axial mean of the directions from each hole top to its nearest neighbours, with 
 the spacing along and across the lines, and the mean hole direction. Then, per principal axis of a
 fitted model: the sample spacing along the axis (median distance to the nearest other composite
 within 15 degrees of it), the pairs per lag, the first lag with enough pairs, and warnings when the
-fitted range is shorter than that spacing (the range is not supported by any pair) or when the major
+fitted range is shorter than that spacing (the range is not supported by any pair), or shorter than
+two spacings (the rise to the sill is not resolved: at most one lag inside the range), or when the major
 or minor axis lies within 15 degrees of the drill lines or of the holes (it may be the pattern's).
 
 Example
@@ -141,11 +142,19 @@ def check_model(pattern: dict, xyz, axes, ranges, principal=None, lags=None, min
             entry["pairs_per_lag"] = [float(v) for v in pairs]
             good = np.flatnonzero(pairs >= min_pairs)
             entry["first_supported_lag_m"] = float(ex.distance[good[0]]) if len(good) else None
+        entry["spacings_within_range"] = float(ranges[a] / spacing) if math.isfinite(spacing) and spacing > 0 \
+            else None
         if math.isfinite(spacing) and ranges[a] < spacing:
             entry["supported"] = False
             out["warnings"].append(
                 f"The {name.replace('_', '-')} range ({ranges[a]:.1f} m) is shorter than the sample spacing along "
                 f"that axis ({spacing:.1f} m): no pair of samples resolves it; it is not supported by the data.")
+        elif math.isfinite(spacing) and ranges[a] < 2.0 * spacing:
+            entry["supported"] = "weakly"
+            out["warnings"].append(
+                f"The {name.replace('_', '-')} range ({ranges[a]:.1f} m) is less than two sample spacings along that "
+                f"axis ({spacing:.1f} m): at most one lag of data lies inside it, so the rise to the sill along "
+                f"this axis is not resolved and the range may reflect the spacing rather than the geology.")
         else:
             entry["supported"] = bool(math.isfinite(spacing))
         if lines is not None and name in ("major", "minor"):

@@ -50,13 +50,14 @@ def axis_errors_deg(fitted_axes, true_axes) -> list[float]:
     return out
 
 
-def recover(seed: int, bootstrap: int = 0, spec: ProgramSpec | None = None, threads=None):
-    """Generate, composite and fit one seed; the fit result and the truth model."""
+def recover(seed: int, bootstrap: int = 0, spec: ProgramSpec | None = None, threads=None, **options):
+    """Generate, composite and fit one seed (``options``: more FitOptions); the fit result, the
+    truth model and (positions, holes) of the composites."""
     from engine.fit import FitOptions, VariogramFitter
     from engine.model import Model
 
     program = generate_program(spec or recovery_spec(), seed=seed)
     xyz, values, hole, depth, _ = composites_of(program)
-    fitter = VariogramFitter(FitOptions(bootstrap=bootstrap, seed=seed, threads=threads))
+    fitter = VariogramFitter(FitOptions(bootstrap=bootstrap, seed=seed, threads=threads, **options))
     fitter.fit(xyz, values, hole, depth, composite_length=2.0)
     return fitter.result_, Model.from_json(program.truth["model"]), (xyz, hole)

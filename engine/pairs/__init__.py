@@ -162,17 +162,19 @@ class PairIndex:
                 params, plan.directions, plan.dir_params, plan.dir_lookup, plan.n_slots, n_columns)
         return acc, int(candidates), int(accepted)
 
-    def run_replicates(self, values, plan, replicate_weights, threads: int | None = None) -> np.ndarray:
+    def run_replicates(self, values, plan, replicate_weights, threads: int | None = None, group=None) -> np.ndarray:
         """Weighted pair counts and sums of squared differences of one variable for many bootstrap
-        replicates in one pass (``replicate_weights`` (n, R), one column per replicate; the
-        directional, down-hole and volume sets of ``plan``). Returns (slots, 2, R)."""
+        replicates in one pass (``replicate_weights`` (n, R), one column per replicate, the same
+        within each resampled ``group`` of points: by default the hole; the directional, down-hole
+        and volume sets of ``plan``). Returns (slots, 2, R)."""
         v = np.ascontiguousarray(self.sorted_values(values)[:, 0])
         w = np.asarray(replicate_weights, dtype=np.float64)
         if w.ndim != 2 or len(w) != self.point_count or not (np.isfinite(w).all() and (w >= 0).all()):
             raise UsageError(f"replicate weights must be ({self.point_count}, R) finite numbers of at least zero")
         w = np.ascontiguousarray(w[self.order])
+        g = self.hole if group is None else np.ascontiguousarray(np.asarray(group, dtype=np.int64)[self.order])
         layout, params = kernels.kernel_arguments(plan, 1, weighted=True)
         with numba_threads(threads) as count:
-            return kernels.replicate_pass(count, self.tasks, self.cell_start, self.x, self.y, self.z, self.hole,
+            return kernels.replicate_pass(count, self.tasks, self.cell_start, self.x, self.y, self.z, self.hole, g,
                                           self.depth, v, w, layout, params, plan.directions, plan.dir_params,
                                           plan.dir_lookup, plan.n_slots)

@@ -469,13 +469,15 @@ def _bin_slots(sep, first_slot, lag, inv_lag, tol, n, slots, count):
 
 
 @jit_parallel
-def replicate_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, replicate_weights, layout, params,
-                   directions, dir_params, dir_lookup, n_slots):
+def replicate_pass(n_threads, tasks, cell_start, x, y, z, hole, group, depth, values, replicate_weights, layout,
+                   params, directions, dir_params, dir_lookup, n_slots):
     """Pair counts and sums of squared differences for R bootstrap replicates at once.
 
-    ``replicate_weights`` (n, R): each point's hole weight in each replicate. A pair of two holes
-    adds w_i w_j, a pair within a hole w_i. Only the directional, down-hole and volume sets of the
-    layout are filled (the same bins as ``pair_pass``, by the same tests); both statistics are
+    ``replicate_weights`` (n, R): each point's weight in each replicate, the same within a resampled
+    group (a hole, or a block of holes: ``group``). A pair from two groups adds w_i w_j, a pair
+    within a group w_i (copies of a group do not pair with each other). Only the directional,
+    down-hole and volume sets of the layout are filled (the same bins as ``pair_pass``, by the same
+    tests); both statistics are
     symmetric in head and tail, so no orientation is needed. Returns (n_slots, 2, R): weighted
     counts, then weighted sums of squared differences.
     """
@@ -552,10 +554,11 @@ def replicate_pass(n_threads, tasks, cell_start, x, y, z, hole, depth, values, r
                     sq = diff * diff
                     wi = replicate_weights[i]
                     wj = replicate_weights[j]
+                    one_group = group[i] == group[j]
                     for q in range(count):
                         row_n = local[slots[q], 0]
                         row_sq = local[slots[q], 1]
-                        if same:
+                        if one_group:
                             for r in range(n_rep):
                                 row_n[r] += wi[r]
                                 row_sq[r] += wi[r] * sq
