@@ -69,13 +69,19 @@ def _direction(u, tolerance_deg) -> Direction:
     return Direction(trend, plunge, tolerance_deg)
 
 
-def perpendicular_fan(axis, count: int) -> np.ndarray:
-    """``count`` unit vectors over 180 degrees in the plane normal to ``axis``."""
-    axis = np.asarray(axis, dtype=np.float64) / np.linalg.norm(axis)
+def _frame(axis):
+    """The unit ``axis`` and two unit vectors normal to it and to each other."""
+    axis = np.asarray(axis, dtype=np.float64)
+    axis = axis / np.linalg.norm(axis)
     helper = np.array([0.0, 0.0, 1.0]) if abs(axis[2]) < 0.9 else np.array([1.0, 0.0, 0.0])
     e1 = np.cross(axis, helper)
     e1 /= np.linalg.norm(e1)
-    e2 = np.cross(axis, e1)
+    return axis, e1, np.cross(axis, e1)
+
+
+def perpendicular_fan(axis, count: int) -> np.ndarray:
+    """``count`` unit vectors over 180 degrees in the plane normal to ``axis``."""
+    _, e1, e2 = _frame(axis)
     a = np.pi * np.arange(count) / count
     return np.cos(a)[:, None] * e1 + np.sin(a)[:, None] * e2
 
@@ -98,6 +104,14 @@ def _line_sets(acc, first_slot, count) -> Experimental:
     with np.errstate(invalid="ignore", divide="ignore"):
         return Experimental(np.where(n > 0, s[:, k.SUM_D] / n, np.nan),
                             np.where(n > 0, s[:, k.SUM_SQ] / (2 * n), np.nan), n)
+
+
+def _from_replicate_sums(sums, first_slot, count, distance, replicate=0) -> Experimental:
+    """A line set's variogram from ``PairIndex.run_replicates`` sums (counts, squared differences)."""
+    n = sums[first_slot + 1:first_slot + count + 1, 0, replicate]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        g = np.where(n > 0, sums[first_slot + 1:first_slot + count + 1, 1, replicate] / (2 * n), np.nan)
+    return Experimental(distance, g, n)
 
 
 def directional_experimentals(acc) -> list[Experimental]:
@@ -228,12 +242,7 @@ def cone_directions(axis, tolerance_deg, rings: int = 3, per_ring: int = 8) -> n
     """Unit vectors spread evenly over the cone of half-angle ``tolerance_deg`` about ``axis``: the
     axis itself is the centre of ``rings`` rings of equal solid angle with ``per_ring`` directions
     each (every direction stands for the same share of the cone)."""
-    axis = np.asarray(axis, dtype=np.float64)
-    axis = axis / np.linalg.norm(axis)
-    helper = np.array([0.0, 0.0, 1.0]) if abs(axis[2]) < 0.9 else np.array([1.0, 0.0, 0.0])
-    e1 = np.cross(axis, helper)
-    e1 /= np.linalg.norm(e1)
-    e2 = np.cross(axis, e1)
+    axis, e1, e2 = _frame(axis)
     cos_a = math.cos(math.radians(tolerance_deg))
     out = []
     for j in range(rings):
@@ -428,16 +437,9 @@ class VariogramFitter:
                     directional_bins=bins)
         plan = sets.plan()
         sums = index.run_replicates(values, plan, np.ones((index.point_count, 1)), threads=self.options.threads)
-        width = bins.count + 1
         centres = np.arange(1, bins.count + 1) * bins.lag_m
-        out = []
-        for s in range(len(directions)):
-            first = plan.layout[k.L_DIR_SLOT] + s * width
-            n = sums[first + 1:first + width, 0, 0]
-            with np.errstate(invalid="ignore", divide="ignore"):
-                out.append(Experimental(centres, np.where(n > 0, sums[first + 1:first + width, 1, 0] / (2 * n),
-                                                          np.nan), n))
-        return out
+        return [_from_replicate_sums(sums, plan.layout[k.L_DIR_SLOT] + s * (bins.count + 1), bins.count, centres)
+                for s in range(len(directions))]
 
     def _principal_pass(self, xyz, values, hole, depth, index, axes, bins, weights=None, volume=None,
                         downhole=None):
@@ -501,9 +503,9 @@ class VariogramFitter:
         o = self.options
         rng = np.random.default_rng(o.seed)
         main = result.model
-        group = hole
-        if o.bootstrap_block_m != 0:
-            group = _hole_blocks(xyz, hole, o.bootstrap_block_m or 0.5 * max(s.ranges_m[0] for s in main.structures))
+        block = None if o.bootstrap_block_m == 0 else float(o.bootstrap_block_m or
+                                                              0.5 * max(s.ranges_m[0] for s in main.structures))
+        group = hole if block is None else _hole_blocks(xyz, hole, block)
         ids, code = np.unique(group, return_inverse=True)
         draws = rng.multinomial(len(ids), np.full(len(ids), 1.0 / len(ids)), size=o.bootstrap).T
         weights = draws[code].astype(np.float64)
@@ -525,17 +527,11 @@ class VariogramFitter:
         ranges = {name: [] for name in AXIS_NAMES}
         failed = 0
 
-        def line(first, count, distance, r):
-            n = sums[first + 1:first + count + 1, 0, r]
-            with np.errstate(invalid="ignore", divide="ignore"):
-                g = np.where(n > 0, sums[first + 1:first + count + 1, 1, r] / (2 * n), np.nan)
-            return Experimental(distance, g, n)
-
         for r in range(o.bootstrap):
             try:
                 used = weights[:, r] > 0
                 variance = float(np.cov(values[used], aweights=weights[used, r]))
-                dh = line(dh_first, downhole_bins.count, result.downhole.distance, r)
+                dh = _from_replicate_sums(sums, dh_first, downhole_bins.count, result.downhole.distance, r)
                 nugget = min(nugget_from_downhole(dh, o.min_pairs), 0.95 * variance)
                 n_v = sums[vol_slots, 0, r]
                 ok = n_v >= o.min_pairs
@@ -546,7 +542,8 @@ class VariogramFitter:
                 w_v = n_v[ok] / np.linalg.norm(hv[ok], axis=1)
                 refined, _, _ = fit_lag_vectors(hv[ok], g_v, w_v / w_v.mean(), nugget, main.axes, n_struct, shape,
                                                 start, fit_rotation=True, max_range=reach)
-                principal = [line(f, bins.count, ex.distance, r) for f, ex in zip(dir_first, result.principal)]
+                principal = [_from_replicate_sums(sums, f, bins.count, ex.distance, r)
+                             for f, ex in zip(dir_first, result.principal)]
                 fitted, _, _ = choose_and_fit(principal, main.axes, variance, nugget, one, reach)
             except (FitError, ValueError, np.linalg.LinAlgError):
                 failed += 1
@@ -556,8 +553,6 @@ class VariogramFitter:
                 angles[name].append(math.degrees(math.acos(min(1.0, cos))))
                 ranges[name].append(max(s.ranges_m[a] for s in fitted.structures))
         done = o.bootstrap - failed
-        block = None if o.bootstrap_block_m == 0 else float(o.bootstrap_block_m or
-                                                              0.5 * max(s.ranges_m[0] for s in main.structures))
         unit = "single holes" if block is None else f"blocks of holes whose tops share a {block:.1f} m square in plan"
         out = {"replicates": o.bootstrap, "failed": failed, "resampled": unit, "groups": int(len(ids)),
                "method": f"{unit} resampled with replacement, each weighted by its draws (copies of a group do not "
@@ -579,10 +574,9 @@ class VariogramFitter:
 
 def _hole_blocks(xyz, hole, block_m):
     """Each point's block: holes grouped by the square of ``block_m`` in plan holding their top."""
-    order = np.lexsort((-xyz[:, 2], hole))
-    h = hole[order]
-    first = np.r_[True, h[1:] != h[:-1]]
-    tops = xyz[order][first]
+    from .pattern import hole_ends
+
+    tops, _ = hole_ends(xyz, hole)
     cell = np.floor((tops[:, :2] - tops[:, :2].min(axis=0)) / max(block_m, 1e-9)).astype(np.int64)
     block_of_hole = cell[:, 0] * (cell[:, 1].max() + 1) + cell[:, 1]
     _, position = np.unique(hole, return_inverse=True)

@@ -42,14 +42,14 @@ def _axial_angle_deg(a, b) -> float:
     return math.degrees(math.acos(min(1.0, c)))
 
 
-def _hole_ends(xyz, hole):
+def hole_ends(xyz, hole):
+    """The highest and the lowest composite of each hole, holes in ascending order of their ids:
+    (tops, bottoms) as (holes, 3) arrays."""
     order = np.lexsort((-xyz[:, 2], hole))
     h = hole[order]
     first = np.r_[True, h[1:] != h[:-1]]
     last = np.r_[h[1:] != h[:-1], True]
-    tops, bottoms = xyz[order][first], xyz[order][last]
-    mids = np.array([xyz[hole == k].mean(axis=0) for k in h[first]])
-    return tops, bottoms, mids
+    return xyz[order][first], xyz[order][last]
 
 
 def drill_pattern(xyz, hole) -> dict:
@@ -58,7 +58,8 @@ def drill_pattern(xyz, hole) -> dict:
 
     xyz = np.asarray(xyz, dtype=np.float64)
     hole = np.asarray(hole)
-    tops, bottoms, mids = _hole_ends(xyz, hole)
+    tops, bottoms = hole_ends(xyz, hole)
+    mids = np.array([xyz[hole == k].mean(axis=0) for k in np.unique(hole)])
     n = len(tops)
     out = {"holes": int(n), "composites": int(len(xyz))}
     if n >= 2:
