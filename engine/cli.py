@@ -151,6 +151,11 @@ def _fit_options(parser: argparse.ArgumentParser):
     group.add_argument("--threads", type=int, metavar="N", help="worker threads (default: all cores)")
 
 
+def _detrend_option(parser: argparse.ArgumentParser):
+    parser.add_argument("--detrend", choices=("none", "linear", "quadratic"), default="none",
+                        help="fit a polynomial trend in the coordinates and model the residuals (default: none)")
+
+
 def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="drillaxis", description=DESCRIPTION)
     from . import __version__
@@ -243,6 +248,17 @@ def build_parser() -> argparse.ArgumentParser:
                    "local:N for N local worker processes")
     _common_options(p)
 
+    p = commands.add_parser("stationarity", help="is the domain stationary enough for variography?",
+                            description="Check the composites of one value column for a trend in the mean, a "
+                                        "proportional effect, mixed populations, a variogram without a sill and "
+                                        "differences between two halves. Writes stationarity.json and its "
+                                        "figures (stationarity_*.png); with --detrend also trend.csv.")
+    _composite_input(p)
+    _detrend_option(p)
+    p.add_argument("--model", metavar="FILE", help="a model.json whose axes get swaths too")
+    p.add_argument("--threads", type=int, metavar="N", help="worker threads (default: all cores)")
+    _common_options(p)
+
     p = commands.add_parser("fit", help="principal directions and the fitted variogram model",
                             description="Find the directions of greatest, intermediate and least continuity, "
                                         "fit a nugget and nested structures with the anisotropy ellipsoid, "
@@ -250,12 +266,14 @@ def build_parser() -> argparse.ArgumentParser:
                                         "Writes model.json, pattern.json and fit_variograms.csv.")
     _composite_input(p)
     _fit_options(p)
+    _detrend_option(p)
     _common_options(p)
 
-    p = commands.add_parser("run", help="composite, fit and check in one go",
-                            description="Desurvey and composite the tables, then fit the variogram model of "
-                                        "one value column (optionally in one domain) and check the drill "
-                                        "pattern. Writes every file of the steps into --out.")
+    p = commands.add_parser("run", help="composite, check stationarity, fit, check the pattern, report",
+                            description="Desurvey and composite the tables, check the stationarity of one value "
+                                        "column (optionally in one domain), fit its variogram model, check the "
+                                        "drill pattern and write report.html. Writes every file of the steps "
+                                        "into --out.")
     _table_options(p)
     _computing_options(p)
     p.add_argument("--value", required=True, metavar="COLUMN", help="the value column to fit")
@@ -263,6 +281,7 @@ def build_parser() -> argparse.ArgumentParser:
                    "composites only")
     p.add_argument("--length", type=float, default=2.0, metavar="M", help="composite length (default 2)")
     _fit_options(p)
+    _detrend_option(p)
     _common_options(p)
 
     p = commands.add_parser("demo", help="run the workflow on a built-in synthetic drill program",
@@ -490,19 +509,21 @@ def cmd_composite(args, console: Console) -> int:
     return 0
 
 
-def _read_composites(path, value, domain):
+def _read_composites(path, value, domain, with_rows=False):
     from .tables import read_raw_table
 
     raw = read_raw_table(path, "composites", frozenset({"hole"}))
     if domain:
         column, _, wanted = domain.partition("=")
         domain = (column, wanted)
-    return _composites_arrays(raw.frame, value, domain, path)
+    arrays = _composites_arrays(raw.frame, value, domain, path, with_rows)
+    return (*arrays, raw.frame) if with_rows else arrays
 
 
-def _composites_arrays(frame, value, domain, path="the composites"):
+def _composites_arrays(frame, value, domain, path="the composites", with_rows=False):
     """Positions, values, hole numbers, mid-depths, the median length and the count left out for
-    want of a position; ``domain`` is None or (column, wanted value)."""
+    want of a position; ``domain`` is None or (column, wanted value). With ``with_rows`` also the
+    frame of the composites used (same order)."""
     import numpy as np
     import pandas as pd
 
@@ -531,7 +552,8 @@ def _composites_arrays(frame, value, domain, path="the composites"):
         length = np.nanmedian(frame["to"].to_numpy(dtype=np.float64) - frame["from"].to_numpy(dtype=np.float64))
     else:
         depth, length = np.zeros(len(frame)), None
-    return xyz[keep], values[keep], hole[keep], depth[keep], length, int((~keep).sum())
+    arrays = xyz[keep], values[keep], hole[keep], depth[keep], length, int((~keep).sum())
+    return (*arrays, frame[keep]) if with_rows else arrays
 
 
 def cmd_variogram(args, console: Console) -> int:
@@ -610,19 +632,23 @@ def cmd_variogram(args, console: Console) -> int:
     return 0
 
 
-def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, console: Console, step, domain_text=None):
-    """Fit the model, check the pattern, write model.json, pattern.json and fit_variograms.csv."""
+def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, domain_text=None, lead=None,
+                   detrend=None):
+    """Fit the model, check the pattern, write model.json, pattern.json, fit_variograms.csv,
+    variograms.csv and volume.npz. ``lead``: warnings that open model.json (stationarity flags);
+    ``detrend``: the trend whose residuals ``values`` are. Returns what the report needs."""
     import numpy as np
     import pandas as pd
 
-    from .fit import FitOptions, VariogramFitter, model_json
+    from .fit import FitOptions, VariogramFitter, cone_directions, model_json
     from .outputs import write_csv, write_json
     from .pattern import check_model, drill_pattern
     from .variogram import normal_scores
 
     if args.transform == "log":
         if (values[np.isfinite(values)] <= 0).any():
-            raise UsageError("--transform log needs values above zero.")
+            raise UsageError("--transform log needs values above zero" + (" (residuals from a trend are not: use "
+                             "--transform normal-score)" if detrend else "") + ".")
         values = np.log(values)
     elif args.transform == "normal-score":
         values = normal_scores(values)
@@ -638,16 +664,20 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, console: C
     checks = check_model(pattern, xyz, model.axes, ranges, result.principal, min_pairs=options.min_pairs)
     pattern["model_axes"] = checks["axes"]
     pattern["warnings"] = checks["warnings"]
-    data = model_json(result, args.value, domain_text)
+    fitted = model_json(result, args.value, domain_text)
+    data = {"schema": fitted.pop("schema"), "warnings": list(lead or []), **fitted}
     data["transform"] = args.transform
+    if detrend:
+        data["detrend"] = {k: detrend[k] for k in ("kind", "terms", "coefficients", "centre", "unit_m", "r_squared")}
+        data["detrend"]["note"] = "the model is of the residuals: value minus this trend"
     data["pattern"] = {"warnings": checks["warnings"],
                        "collar_spacing_m": pattern.get("collar_spacing_m", {}).get("median"),
                        "drill_lines": pattern.get("lines"), "hole_direction": pattern.get("hole_direction")}
     data["caution"] = CAUTION
+    if getattr(args, "provenance", None):
+        data["provenance"] = args.provenance
     write_json(data, out / "model.json")
     write_json(pattern, out / "pattern.json")
-    from .fit import cone_directions
-
     rows = []
     for a, (name, ex) in enumerate(zip(("major", "semi_major", "minor"), result.principal)):
         d = np.nan_to_num(ex.distance)
@@ -660,11 +690,15 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, console: C
     dh = result.downhole
     rows.append(pd.DataFrame({"set": "downhole", "distance": dh.distance, "pairs": dh.pairs, "gamma": dh.gamma,
                               "model": np.nan, "model_in_cone": np.nan}))
-    write_csv(pd.concat(rows, ignore_index=True), out / "fit_variograms.csv")
+    frame = pd.concat(rows, ignore_index=True)
+    write_csv(frame, out / "fit_variograms.csv")
     _write_variograms(fitter.principal_, fitter.volume_, out)
-    _model_summary(data, out, console)
-    console.say(f"  caution: {CAUTION}")
-    return data
+    volume = None
+    grid = fitter.volume_.plan.sets.volume
+    if grid is not None:
+        gamma, counts = fitter.volume_.volume(0)
+        volume = {"gamma": gamma, "pairs": counts, "cell_m": grid.cell_m, "half_counts": grid.half_counts}
+    return {"model": data, "pattern": pattern, "fit_variograms": frame, "volume": volume}
 
 
 def _write_variograms(line_acc, volume_acc, out: Path, measure: str = "semivariogram"):
@@ -687,6 +721,9 @@ def _write_variograms(line_acc, volume_acc, out: Path, measure: str = "semivario
 
 def _model_summary(data: dict, out: Path, console: Console):
     o = data["orientation"]
+    if data.get("detrend"):
+        console.say(f"model of the residuals from a {data['detrend']['kind']} trend (r squared "
+                    f"{data['detrend']['r_squared']:.3f})")
     console.say(f"model of {data['variable']}: variance {data['variance']:.4g}, nugget {data['nugget']:.4g}, "
                 f"{data['pairs_used']:,} pairs along the principal axes -> {out / 'model.json'}")
     for s in data["structures"]:
@@ -709,18 +746,213 @@ def _model_summary(data: dict, out: Path, console: Console):
         console.say(f"  PROBLEM: {text}")
 
 
+def _stationarity(xyz, values, hole, args, out: Path, domain_text=None, labels=None, rows=None):
+    """The stationarity checks; write stationarity.json (and trend.csv with --detrend). Returns the
+    data and, with --detrend, the residuals (else None)."""
+    import numpy as np
+
+    from .errors import TableError
+    from .outputs import write_csv, write_json
+    from .stationarity import diagnose, domain_summary, fit_trend, trend_values
+
+    try:
+        report = diagnose(xyz, values, hole, threads=args.threads)
+    except ValueError as exc:
+        raise TableError(f"stationarity of {args.value!r}: {exc}.") from None
+    data = {"schema": "drillaxis.stationarity/1", "variable": args.value, "domain": domain_text, **report}
+    if labels is not None:
+        data["checks"]["mixture"]["domains"] = domain_summary(*labels)
+    residuals = None
+    detrend = getattr(args, "detrend", "none")
+    if detrend != "none":
+        ok = np.isfinite(values)
+        trend = fit_trend(xyz[ok], values[ok], detrend)
+        fitted = trend_values(trend, xyz)
+        residuals = values - fitted
+        again = diagnose(xyz, residuals, hole, threads=args.threads)
+        trend["residual_flags"] = again["flags"]
+        trend["residual_warnings"] = again["warnings"]
+        data["detrend"] = trend
+        frame = rows[[c for c in ("hole", "from", "to", "x", "y", "z") if c in rows.columns]].copy() \
+            if rows is not None else None
+        if frame is None or len(frame) != len(values):
+            import pandas as pd
+
+            frame = pd.DataFrame({"x": xyz[:, 0], "y": xyz[:, 1], "z": xyz[:, 2]})
+        frame[args.value] = values
+        frame["trend"] = fitted
+        frame["residual"] = residuals
+        write_csv(frame, out / "trend.csv")
+    write_json(data, out / "stationarity.json")
+    return data, residuals
+
+
+def _stationarity_figures(data: dict, xyz, values, out: Path) -> list:
+    from viewer import figures
+
+    from .outputs import atomic_path
+
+    ch = data["checks"]
+    variable = data["variable"]
+    made = {"swaths": figures.swaths(ch["trend"], variable),
+            "proportional_effect": figures.proportional_effect(ch["proportional_effect"], variable),
+            "mixture": figures.mixture(ch["mixture"], values, variable),
+            "sill": figures.sill(ch["sill"], variable),
+            "halves": figures.halves(ch["halves"], xyz, variable)}
+    paths = []
+    for name, content in made.items():
+        path = out / f"stationarity_{name}.png"
+        with atomic_path(path) as temporary:
+            temporary.write_bytes(content)
+        paths.append(path)
+    return paths
+
+
+def _stationarity_summary(data: dict, out: Path, console: Console):
+    flags = data["flags"]
+    console.say(f"stationarity of {data['variable']}: {len(flags)} of {len(data['checks'])} checks flagged"
+                + (f" ({', '.join(f.replace('_', ' ') for f in flags)})" if flags else "")
+                + f" -> {out / 'stationarity.json'}")
+    for text in data["warnings"]:
+        console.say(f"  WARNING (stationarity): {text}")
+    if data.get("detrend"):
+        d = data["detrend"]
+        left = d["residual_flags"]
+        console.say(f"  detrended ({d['kind']}, r squared {d['r_squared']:.3f}) -> {out / 'trend.csv'}; checks "
+                    f"flagged on the residuals: {', '.join(left) if left else 'none'}")
+
+
+def _lead_warnings(data: dict) -> list:
+    return [f"Stationarity: {text}" for text in data["warnings"]]
+
+
+def cmd_stationarity(args, console: Console) -> int:
+    import json
+
+    import numpy as np
+
+    from .provenance import provenance
+
+    out = _out_dir(args.out)
+    xyz, values, hole, depth, length, unplaced, rows, whole = _read_composites(args.composites, args.value,
+                                                                               args.domain, with_rows=True)
+    labels = None
+    if args.domain:
+        column = args.domain.partition("=")[0]
+        import pandas as pd
+
+        labels = (pd.to_numeric(whole[args.value], errors="coerce").to_numpy(dtype=np.float64), whole[column])
+    args.provenance = provenance({"composites": args.composites}, _options_of(args), {"composites": len(whole)})
+    data, _ = _stationarity(xyz, values, hole, args, out, args.domain, labels, rows)
+    if args.model:
+        from .model import Model
+        from .outputs import write_json
+        from .stationarity import trend_check
+
+        try:
+            model = Model.from_json(json.loads(Path(args.model).read_text(encoding="utf-8")))
+        except (OSError, ValueError, KeyError) as exc:
+            raise UsageError(f"--model {args.model!r}: cannot read a model from it ({exc}).") from None
+        data["model_axes_trend"] = trend_check(xyz, values, model.axes, threads=args.threads, coordinates=False)
+        write_json(data, out / "stationarity.json")
+    _stationarity_figures(data, xyz, values, out)
+    _stationarity_summary(data, out, console)
+    if unplaced:
+        console.say(f"  {unplaced} composite(s) without a position left out")
+    return 0
+
+
+def _options_of(args) -> dict:
+    return {k: v for k, v in vars(args).items() if k not in ("provenance", "func")}
+
+
 def cmd_fit(args, console: Console) -> int:
     out = _out_dir(args.out)
     names = ["reading composites", "searching directions", "fanning about the major axis",
              "refining the axes on the variogram volume", "fitting the model", f"bootstrap of {args.bootstrap} "
              "replicates", "checking the drill pattern"]
+    from .provenance import provenance
+
     with console.stages(names) as step:
         step(names[0])
         xyz, values, hole, depth, length, unplaced = _read_composites(args.composites, args.value, args.domain)
-        _fit_and_check(xyz, values, hole, depth, length, args, out, console, step, args.domain)
+        args.provenance = provenance({"composites": args.composites}, _options_of(args), {"composites": len(values)})
+        trend = None
+        if args.detrend != "none":
+            import numpy as np
+
+            from .stationarity import fit_trend, trend_values
+
+            ok = np.isfinite(values)
+            trend = fit_trend(xyz[ok], values[ok], args.detrend)
+            values = values - trend_values(trend, xyz)
+        fitted = _fit_and_check(xyz, values, hole, depth, length, args, out, step, args.domain, detrend=trend)
+    _model_summary(fitted["model"], out, console)
+    console.say(f"  caution: {CAUTION}")
     if unplaced:
         console.say(f"  {unplaced} composite(s) without a position left out")
     return 0
+
+
+def _data_summary(tables, rejected, result, xyz, value) -> dict:
+    import numpy as np
+
+    intervals = tables.intervals
+    sampled = intervals[np.isfinite(intervals[value].to_numpy(dtype=np.float64))] if value in intervals else intervals
+    return {"holes": int(len(tables.collars)), "metres drilled": float(tables.collars["depth"].sum()),
+            "survey rows": int(len(tables.surveys)), "interval rows": int(len(intervals)),
+            f"metres sampled for {value}": float((sampled["to"] - sampled["from"]).sum()),
+            "input rows left out (rejected.csv)": int(len(rejected)),
+            "composites (all domains)": int(len(result.composites)),
+            "composites used for the model": int(len(xyz))}
+
+
+def _run_workflow(tables, rejected, result, args, out, step, value, domain, inputs):
+    """From the composites of a run or the demo: stationarity, fit, pattern, report. Returns
+    (stationarity data, fitted dict)."""
+    import numpy as np
+
+    from .provenance import provenance
+
+    column, wanted = domain if domain else (None, None)
+    xyz, values, hole, depth, length, _, rows = _composites_arrays(result.composites, value, domain, with_rows=True)
+    rows_in = {role: len(getattr(tables, role)) for role in ("collars", "surveys", "intervals")}
+    args.provenance = provenance(inputs, _options_of(args), rows_in)
+    domain_text = f"{column}={wanted}" if wanted else None
+    step("checking stationarity")
+    labels = None
+    if column and column in result.composites.columns:
+        labels = (result.composites[value].to_numpy(dtype=np.float64), result.composites[column])
+    st, residuals = _stationarity(xyz, values, hole, args, out, domain_text, labels, rows)
+    fitted = _fit_and_check(xyz, values if residuals is None else residuals, hole, depth, length, args, out, step,
+                            domain_text, lead=_lead_warnings(st), detrend=st.get("detrend"))
+    step("writing the report")
+    from .model import Model
+    from .outputs import write_json
+    from .stationarity import trend_check
+
+    model = Model.from_json(fitted["model"])
+    st["model_axes_trend"] = trend_check(xyz, values, model.axes, threads=args.threads, coordinates=False)
+    write_json(st, out / "stationarity.json")
+    _stationarity_figures(st, xyz, values, out)
+    from viewer.report import write_report
+
+    context = {"title": f"drillaxis report: {value}" + (f", {domain_text}" if domain_text else ""),
+               "domain": domain_text, "data_summary": _data_summary(tables, rejected, result, xyz, value),
+               "findings": tables.findings, "composite": result.summary, "composite_check": result.check,
+               "stationarity": st, "values": values, "xyz": xyz, "hole": hole, "model": fitted["model"],
+               "fit_variograms": fitted["fit_variograms"], "volume": fitted["volume"], "pattern": fitted["pattern"],
+               "provenance": args.provenance, "caution": CAUTION,
+               "warnings": fitted["model"]["warnings"] + [f"Drill pattern: {w}" for w in fitted["pattern"]["warnings"]]
+               + [f"Fit: {w}" for w in fitted["model"]["fit"]["problems"]]}
+    write_report(out / "report.html", context)
+    return st, fitted
+
+
+RUN_STAGES = ["checking stationarity", "searching directions", "fanning about the major axis",
+              "refining the axes on the variogram volume", "fitting the model", "bootstrap",
+              "checking the drill pattern",
+              "writing the report"]
 
 
 def cmd_run(args, console: Console) -> int:
@@ -735,9 +967,7 @@ def cmd_run(args, console: Console) -> int:
                                            "density": None, "density_default": None, "whole_run": False,
                                            "bench": None, "bench_base": 0.0, "cap": []})
     _composite_options(composite_args)
-    names = ["reading and validating", "desurveying", "compositing", "writing composites", "searching directions",
-             "fanning about the major axis", "refining the axes on the variogram volume", "fitting the model",
-             f"bootstrap of {args.bootstrap} replicates", "checking the drill pattern"]
+    names = ["reading and validating", "desurveying", "compositing", "writing composites", *RUN_STAGES]
     with console.stages(names) as step:
         step(names[0])
         tables, rejected = _checked_tables(composite_args, out)
@@ -745,10 +975,14 @@ def cmd_run(args, console: Console) -> int:
             raise UsageError(f"--value {args.value!r}: not a value column of the intervals table (value columns: "
                              f"{', '.join(tables.value_columns) or 'none'}).")
         result = _composite(tables, rejected, composite_args, out, step)
-        xyz, values, hole, depth, length, _ = _composites_arrays(result.composites, args.value,
-                                                                 (domain_column, wanted) if wanted else None)
-        _composite_summary(result, out, console)
-        _fit_and_check(xyz, values, hole, depth, length, args, out, console, step, args.domain)
+        inputs = {"collars": args.collars, "surveys": args.surveys, "intervals": args.intervals}
+        st, fitted = _run_workflow(tables, rejected, result, args, out, step, args.value,
+                                   (domain_column, wanted) if wanted else None, inputs)
+    _stationarity_summary(st, out, console)
+    _composite_summary(result, out, console)
+    _model_summary(fitted["model"], out, console)
+    console.say(f"report -> {out / 'report.html'}")
+    console.say(f"  caution: {CAUTION}")
     return 0
 
 
@@ -778,9 +1012,7 @@ def cmd_demo(args, console: Console) -> int:
     started = time.perf_counter()
     out = _out_dir(args.out)
     names = ["generating the drill program", "reading and validating", "desurveying",
-             "writing traces and samples", "compositing", "writing composites", "searching directions",
-             "fanning about the major axis", "refining the axes on the variogram volume", "fitting the model",
-             "bootstrap of 50 replicates", "checking the drill pattern"]
+             "writing traces and samples", "compositing", "writing composites", *RUN_STAGES]
     with console.stages(names) as step:
         step(names[0])
         program = generate_program(ProgramSpec(), seed=args.seed)
@@ -797,15 +1029,15 @@ def cmd_demo(args, console: Console) -> int:
         trace, traces, samples = _desurvey(tables, table_args, out, console, step)
         result = _composite(tables, rejected, table_args, out, step, trace)
         fit_args = argparse.Namespace(value="au_gpt", transform="none", lag=None, lags=12, structures="auto",
-                                      bootstrap=50, seed=0, threads=None)
-        xyz, values, hole, depth, length, _ = _composites_arrays(result.composites, "au_gpt", ("domain", "FRESH"))
-        quiet = Console(quiet=True)
-        data = _fit_and_check(xyz, values, hole, depth, length, fit_args, out, quiet, step, "domain=FRESH")
+                                      bootstrap=50, seed=0, threads=None, detrend="none", demo_seed=args.seed)
+        st, fitted = _run_workflow(tables, rejected, result, fit_args, out, step, "au_gpt", ("domain", "FRESH"), paths)
+        data = fitted["model"]
     truth = program.truth
     console.say(f"drillaxis demo: the invented Tarn Hill program (seed {args.seed}) -> {out / 'data'}")
     _findings_summary(tables, console, out, limit=5)
     _desurvey_summary(trace, traces, samples, "minimum-curvature", out, console)
     _composite_summary(result, out, console)
+    _stationarity_summary(st, out, console)
     model = truth["model"]
     o = model["orientation"]
     console.say("truth behind the grades (truth.json):")
@@ -817,19 +1049,22 @@ def cmd_demo(args, console: Console) -> int:
                 f"pitch {o['pitch']:.1f}")
     _model_summary(data, out, console)
     _truth_against_fit(truth["model"], data, console)
+    console.say(f"report -> {out / 'report.html'}")
     console.say(f"  caution: {CAUTION}")
     console.say(f"done in {time.perf_counter() - started:.1f} s")
     return 0
 
 
 COMMANDS = {"check": cmd_check, "desurvey": cmd_desurvey, "composite": cmd_composite,
-            "variogram": cmd_variogram, "fit": cmd_fit, "run": cmd_run, "demo": cmd_demo}
+            "variogram": cmd_variogram, "stationarity": cmd_stationarity, "fit": cmd_fit, "run": cmd_run,
+            "demo": cmd_demo}
 
 
 def main(argv=None) -> int:
     _safe_streams()
     parser = build_parser()
     args = parser.parse_args(argv)
+    args.command_line = list(sys.argv[1:] if argv is None else argv)
     console = Console(getattr(args, "quiet", False))
     try:
         return COMMANDS[args.command](args, console)
