@@ -787,7 +787,8 @@ def _stationarity(xyz, values, hole, args, out: Path, domain_text=None, labels=N
     return data, residuals
 
 
-def _stationarity_figures(data: dict, xyz, values, out: Path) -> list:
+def _stationarity_figures(data: dict, xyz, values, out: Path) -> dict:
+    """Write stationarity_*.png; returns the PNG bytes by check (the report embeds the same)."""
     from viewer import figures
 
     from .outputs import atomic_path
@@ -799,13 +800,10 @@ def _stationarity_figures(data: dict, xyz, values, out: Path) -> list:
             "mixture": figures.mixture(ch["mixture"], values, variable),
             "sill": figures.sill(ch["sill"], variable),
             "halves": figures.halves(ch["halves"], xyz, variable)}
-    paths = []
     for name, content in made.items():
-        path = out / f"stationarity_{name}.png"
-        with atomic_path(path) as temporary:
+        with atomic_path(out / f"stationarity_{name}.png") as temporary:
             temporary.write_bytes(content)
-        paths.append(path)
-    return paths
+    return made
 
 
 def _stationarity_summary(data: dict, out: Path, console: Console):
@@ -934,7 +932,7 @@ def _run_workflow(tables, rejected, result, args, out, step, value, domain, inpu
     model = Model.from_json(fitted["model"])
     st["model_axes_trend"] = trend_check(xyz, values, model.axes, threads=args.threads, coordinates=False)
     write_json(st, out / "stationarity.json")
-    _stationarity_figures(st, xyz, values, out)
+    made = _stationarity_figures(st, xyz, values, out)
     from viewer.report import write_report
 
     context = {"title": f"drillaxis report: {value}" + (f", {domain_text}" if domain_text else ""),
@@ -942,7 +940,7 @@ def _run_workflow(tables, rejected, result, args, out, step, value, domain, inpu
                "findings": tables.findings, "composite": result.summary, "composite_check": result.check,
                "stationarity": st, "values": values, "xyz": xyz, "hole": hole, "model": fitted["model"],
                "fit_variograms": fitted["fit_variograms"], "volume": fitted["volume"], "pattern": fitted["pattern"],
-               "provenance": args.provenance, "caution": CAUTION,
+               "provenance": args.provenance, "caution": CAUTION, "figures": made,
                "warnings": fitted["model"]["warnings"] + [f"Drill pattern: {w}" for w in fitted["pattern"]["warnings"]]
                + [f"Fit: {w}" for w in fitted["model"]["fit"]["problems"]]}
     write_report(out / "report.html", context)

@@ -210,14 +210,23 @@ def fitted_variograms(rows, model: dict, variable: str) -> bytes:
     return png(figure)
 
 
-def _range_curve(model_obj, e1, e2, count=181):
+def _range_curve(model_obj, e1, e2, count=181, steps=600):
+    """Points of the plane (e1, e2) at the distance where the model first reaches its nugget plus
+    95% of the structures' sill, in each of ``count`` directions."""
     angles = np.linspace(0, 2 * math.pi, count)
-    points = []
-    for a in angles:
-        u = math.cos(a) * e1 + math.sin(a) * e2
-        r = model_obj.effective_range(u)
-        points.append((r * math.cos(a), r * math.sin(a)))
-    return np.array(points)
+    u = np.cos(angles)[:, None] * e1[None, :] + np.sin(angles)[:, None] * e2[None, :]
+    longest = max(max(s.ranges_m) for s in model_obj.structures)
+    h = np.linspace(0.0, 1.5 * longest, steps)
+    gamma = model_obj.gamma((u[:, None, :] * h[None, :, None]).reshape(-1, 3)).reshape(count, steps)
+    level = model_obj.nugget + 0.95 * sum(s.sill for s in model_obj.structures)
+    above = gamma >= level
+    first = np.where(above.any(axis=1), above.argmax(axis=1), steps - 1)
+    low = np.maximum(first - 1, 0)
+    g0, g1 = gamma[np.arange(count), low], gamma[np.arange(count), first]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        t = np.where(g1 > g0, (level - g0) / (g1 - g0), 0.0)
+    r = h[low] + np.clip(t, 0, 1) * (h[first] - h[low])
+    return np.c_[r * np.cos(angles), r * np.sin(angles)]
 
 
 def volume_slices(volume: dict, model: dict) -> bytes:

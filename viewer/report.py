@@ -39,10 +39,12 @@ code { background: #eef1f4; padding: 0 3px; }
 .only { display: block; height: 0; }
 """
 # report.html#only-KEY shows section KEY alone (the screenshots in docs/ are taken that way)
+# (the summary keeps the title and the warnings that lead the page)
 ONLY_CSS = "".join(
-    f"body:has(#only-{key}:target) section:not(#{key}), body:has(#only-{key}:target) .lead "
-    "{ display: none; }" for key in ("summary", "validation", "compositing", "stationarity", "variograms",
-                                     "volume", "ellipsoid", "pattern", "provenance", "cautions"))
+    f"body:has(#only-{key}:target) section:not(#{key})"
+    + ("" if key == "summary" else f", body:has(#only-{key}:target) .lead") + " { display: none; }"
+    for key in ("summary", "validation", "compositing", "stationarity", "variograms", "volume", "ellipsoid",
+                "pattern", "provenance", "cautions"))
 
 SECTIONS = [("summary", "Data"), ("validation", "Validation"), ("compositing", "Compositing"),
             ("stationarity", "Stationarity"), ("variograms", "Variograms and model"), ("volume", "Variogram volume"),
@@ -170,15 +172,16 @@ def _stationarity(c) -> str:
     parts.append(table(["axis", "slope per 100 m", "standard error", "effective samples", "p",
                         "change over extent (sd)", "result"],
                        [(a["name"], a["slope_per_100m"], a["slope_standard_error_per_100m"], a["effective_samples"],
-                         a["p"], a["change_in_sd"], "flagged" if a["flag"] else "") for a in t["axes"]],
+                         a["p"], a["change_in_sd"], "flagged" if a["flag"] else "not flagged") for a in t["axes"]],
                        numeric=[1, 2, 3, 4, 5]))
-    parts.append(image(figures.swaths(t, variable), "swaths along each axis"))
+    made = c.get("figures") or {}
+    parts.append(image(made.get("swaths") or figures.swaths(t, variable), "swaths along each axis"))
     if "model_axes_trend" in st:
         m = st["model_axes_trend"]
         parts.append("<p>Along the fitted model's axes:</p>")
         parts.append(table(["axis", "slope per 100 m", "p", "change over extent (sd)", "result"],
-                           [(a["name"], a["slope_per_100m"], a["p"], a["change_in_sd"], "flagged" if a["flag"] else "")
-                            for a in m["axes"]], numeric=[1, 2, 3]))
+                           [(a["name"], a["slope_per_100m"], a["p"], a["change_in_sd"],
+                             "flagged" if a["flag"] else "not flagged") for a in m["axes"]], numeric=[1, 2, 3]))
         parts.append(image(figures.swaths(m, variable), "swaths along the model axes"))
     p = ch["proportional_effect"]
     parts.append("<h3>Proportional effect: local mean against local standard deviation</h3>")
@@ -186,12 +189,13 @@ def _stationarity(c) -> str:
                  f"{number(p.get('slope'), 3)}, ratio of local standard deviation to local mean "
                  f"{number(p.get('ratio_sd_to_mean'), 3)}, over {p['windows']} windows.</p>")
     if p["windows"]:
-        parts.append(image(figures.proportional_effect(p, variable), "local mean against local sd"))
+        parts.append(image(made.get("proportional_effect") or figures.proportional_effect(p, variable),
+                           "local mean against local sd"))
     m = ch["mixture"]
     parts.append("<h3>Populations</h3>")
     parts.append(f"<p>{_flag(m['flag'])}. {e(m['sentence'])}</p>")
     if c.get("values") is not None:
-        parts.append(image(figures.mixture(m, c["values"], variable), "histogram with mixture"))
+        parts.append(image(made.get("mixture") or figures.mixture(m, c["values"], variable), "histogram with mixture"))
     if m.get("domains"):
         parts.append("<p>Per domain (all composites of the domain column):</p>")
         parts.append(table(["domain", "composites", "mean", "sd", "cv", "median"],
@@ -203,15 +207,16 @@ def _stationarity(c) -> str:
     parts.append(table(["set", "lags used", "last third / variance", "rise over the last third / variance"],
                        [(x["name"], x["lags_used"], x.get("tail_ratio"), x.get("tail_rise")) for x in s["sets"]],
                        numeric=[1, 2, 3]))
-    parts.append(image(figures.sill(s, variable), "variograms to half the extent"))
+    parts.append(image(made.get("sill") or figures.sill(s, variable), "variograms to half the extent"))
     h = ch["halves"]
     parts.append("<h3>Split halves</h3>")
-    parts.append(f"<p>{_flag(h['flag'])}. {e(h['sentence'])} Means differ by {number(h['mean_difference_sd'], 3)} "
-                 f"standard deviations; variances {number(h['variance_ratio'], 3)}-fold; variograms by "
+    parts.append(f"<p>{_flag(h['flag'])}. Split at the median along trend {number(h['trend'], 3)}: means differ "
+                 f"by {number(h['mean_difference_sd'], 3)} standard deviations; variances "
+                 f"{number(h['variance_ratio'], 3)}-fold; variograms by "
                  f"{number(None if h['variogram_difference'] is None else 100 * h['variogram_difference'], 3)}% on "
                  "average.</p>")
     if c.get("xyz") is not None:
-        parts.append(image(figures.halves(h, c["xyz"], variable), "split halves"))
+        parts.append(image(made.get("halves") or figures.halves(h, c["xyz"], variable), "split halves"))
     if st.get("detrend"):
         d = st["detrend"]
         parts.append("<h3>Detrending</h3>")
@@ -334,7 +339,8 @@ def build_report(context: dict) -> str:
     """The page as text. ``context`` keys: title, variable, domain, data_summary (dict), findings
     (DataFrame), composite (summary dict), composite_check (DataFrame), stationarity (dict), values,
     xyz, hole (arrays), model (model.json dict), fit_variograms (DataFrame), volume (dict of
-    arrays), pattern (dict), provenance (dict), caution (text), warnings (list of text).
+    arrays), pattern (dict), provenance (dict), caution (text), warnings (list of text), figures
+    (PNG bytes of the stationarity figures already drawn, by check name; drawn here when absent).
 
     ``report.html#only-KEY`` (KEY a section id) shows that section alone, with no script."""
     c = context
