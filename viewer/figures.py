@@ -26,6 +26,11 @@ plt.rcParams.update({"font.size": 9, "axes.titlesize": 10, "axes.spines.top": Fa
                      "figure.dpi": 110, "savefig.bbox": "tight"})
 
 
+def plain(text) -> str:
+    """Data text for a figure label: a dollar sign would start matplotlib's mathematics mode."""
+    return str(text).replace("$", r"\$")
+
+
 def png(figure) -> bytes:
     buffer = io.BytesIO()
     figure.savefig(buffer, format="png")
@@ -45,6 +50,7 @@ def _grid(count, columns=3, size=(3.6, 2.8)):
 def swaths(trend: dict, variable: str) -> bytes:
     """Slice means (with +- one standard deviation and counts) along each tested axis, with the
     fitted slope."""
+    variable = plain(variable)
     axes_data = trend["axes"]
     figure, panels = _grid(len(axes_data))
     for ax, a in zip(panels, axes_data):
@@ -78,6 +84,7 @@ def swaths(trend: dict, variable: str) -> bytes:
 
 
 def proportional_effect(check: dict, variable: str) -> bytes:
+    variable = plain(variable)
     figure, ax = plt.subplots(figsize=(4.8, 3.8))
     mean, sd = np.asarray(check["local_mean"]), np.asarray(check["local_sd"])
     ax.scatter(mean, sd, s=10 + 40 * np.asarray(check["local_count"]) / max(1, max(check["local_count"], default=1)),
@@ -101,6 +108,7 @@ def _pdf(y, mu, sd):
 
 
 def mixture(check: dict, values, variable: str) -> bytes:
+    variable = plain(variable)
     values = np.asarray(values, dtype=np.float64)
     values = values[np.isfinite(values)]
     log = check["scale"] == "log"
@@ -131,6 +139,7 @@ def mixture(check: dict, values, variable: str) -> bytes:
 
 
 def sill(check: dict, variable: str) -> bytes:
+    variable = plain(variable)
     figure, ax = plt.subplots(figsize=(5.6, 3.8))
     colours = {"omni": DATA, "east": SECOND, "north": MODEL, "vertical": "#7b4fa0"}
     for s in check["sets"]:
@@ -155,6 +164,7 @@ def _variogram_axes(figure, ax, variable, title, flagged) -> bytes:
 
 
 def halves(check: dict, xyz, variable: str) -> bytes:
+    variable = plain(variable)
     figure, (plan, ax) = plt.subplots(1, 2, figsize=(9.0, 3.8))
     xyz = np.asarray(xyz)
     trend = math.radians(check["trend"])
@@ -179,6 +189,7 @@ def halves(check: dict, xyz, variable: str) -> bytes:
 def fitted_variograms(rows, model: dict, variable: str) -> bytes:
     """The experimental variograms along the three principal axes and down the holes, with the
     model along each axis and averaged over the direction's cone."""
+    variable = plain(variable)
     figure, panels = _grid(4, columns=4, size=(3.3, 3.0))
     names = [("major", "major"), ("semi_major", "semi-major"), ("minor", "minor"), ("downhole", "down-hole")]
     top = model["variance"] * 1.4
