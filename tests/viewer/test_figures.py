@@ -14,7 +14,9 @@ def test_stationarity_figures_take_any_column_name():
     values = np.exp(rng.normal(0.0, 0.6, 1500))
     checks = diagnose(xyz, values)["checks"]
     name = "cu $^$ pct <i>x</i>"  # paired dollar signs would start matplotlib's mathematics mode
-    for image in (figures.swaths(checks["trend"], name), figures.proportional_effect(checks["proportional_effect"], name),
-                  figures.mixture(checks["mixture"], values, name), figures.sill(checks["sill"], name),
-                  figures.halves(checks["halves"], xyz, name)):
+    images = [figures.swaths(checks["trend"], name),
+              figures.proportional_effect(checks["proportional_effect"], name),
+              figures.mixture(checks["mixture"], values, name), figures.sill(checks["sill"], name),
+              figures.halves(checks["halves"], xyz, name)]
+    for image in images:
         assert image.startswith(PNG) and len(image) > 5000
