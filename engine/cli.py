@@ -151,6 +151,22 @@ def _fit_options(parser: argparse.ArgumentParser):
     group.add_argument("--threads", type=int, metavar="N", help="worker threads (default: all cores)")
 
 
+def _scene_options(parser: argparse.ArgumentParser):
+    group = parser.add_argument_group("scene")
+    group.add_argument("--pairs-axis", choices=("major", "semi_major", "minor", "none"), default="major",
+                       help="draw the pairs of a lag bin along this model axis (default: major)")
+    group.add_argument("--pairs-lag", type=int, metavar="K", help="lag bin 1..N of those pairs (default: the one "
+                       "nearest half the range along the axis)")
+    group.add_argument("--max-pairs", type=int, default=400, metavar="N", help="pairs drawn at most (default 400)")
+    group.add_argument("--fraction", type=float, default=1.0, metavar="F",
+                       help="draw the ellipsoid at F x the ranges (default 1)")
+    group.add_argument("--structures-apart", action="store_true", help="also one ellipsoid per nested structure")
+    group.add_argument("--centre", metavar="X,Y,Z", help="centre of the ellipsoid (default: the data centre)")
+    group.add_argument("--collar-labels", action="store_true", help="label each hole at its top composite")
+    group.add_argument("--size", type=int, nargs=2, default=(1600, 1200), metavar=("W", "H"),
+                       help="image size in pixels (default 1600 1200)")
+
+
 def _detrend_option(parser: argparse.ArgumentParser):
     parser.add_argument("--detrend", choices=("none", "linear", "quadratic"), default="none",
                         help="fit a polynomial trend in the coordinates and model the residuals (default: none)")
@@ -267,6 +283,22 @@ def build_parser() -> argparse.ArgumentParser:
     _composite_input(p)
     _fit_options(p)
     _detrend_option(p)
+    _common_options(p)
+
+    p = commands.add_parser("view", help="the 3D scene: holes, pairs, ellipsoid and variogram volume",
+                            description="Draw the drill traces coloured by value, the pairs of one lag bin "
+                                        "along a model axis, the fitted ellipsoid with its axes and the "
+                                        "variogram volume's isosurfaces. Writes scene.png (down the minor "
+                                        "axis), scene_plan.png, scene_section.png, scene.html (interactive, "
+                                        "standalone) and scene.vtm (the datasets, for any VTK reader).")
+    p.add_argument("--composites", required=True, metavar="FILE", help="composites.csv (hole, from, to, x, y, z "
+                   "and the value)")
+    p.add_argument("--model", required=True, metavar="FILE", help="model.json of drillaxis fit or run")
+    p.add_argument("--value", metavar="COLUMN", help="value column to colour by (default: the model's variable)")
+    p.add_argument("--domain", metavar="COLUMN=VALUE", help="composites of one domain (default: the model's)")
+    p.add_argument("--units", default="", metavar="TEXT", help="units of the value, for the colour bar")
+    _scene_options(p)
+    p.add_argument("--show", action="store_true", help="also open an interactive window (needs a display)")
     _common_options(p)
 
     p = commands.add_parser("run", help="composite, check stationarity, fit, check the pattern, report",
@@ -892,6 +924,113 @@ def cmd_fit(args, console: Console) -> int:
     return 0
 
 
+SCENE_DEFAULTS = dict(pairs_axis="major", pairs_lag=None, max_pairs=400, fraction=1.0, structures_apart=False,
+                      centre=None, collar_labels=False, size=(1600, 1200), units="", show=False)
+
+
+def _scene(xyz, values, hole, depth, hole_names, model: dict, volume, args, out: Path, value_name: str) -> dict:
+    """Draw and write the scene (scene.png, scene_plan.png, scene_section.png, scene.html,
+    scene.vtm); returns the PNG bytes by view and what was drawn."""
+    import numpy as np
+
+    from .model import AXIS_NAMES, Model
+    from .orientation import trend_plunge
+    from .outputs import atomic_path
+    from .variogram import Direction, LagBins, Sets, bin_pairs
+
+    o = {**SCENE_DEFAULTS, **{k: v for k, v in vars(args).items() if k in SCENE_DEFAULTS}}
+    fitted = Model.from_json(model)
+    pairs, chosen = None, None
+    if o["pairs_axis"] != "none":
+        a = AXIS_NAMES.index(o["pairs_axis"])
+        trend, plunge = trend_plunge(fitted.axes[a])
+        lag = float(model.get("fit", {}).get("lag_m") or max(np.ptp(xyz, axis=0)) / 30)
+        lags = 12
+        sets = Sets(directions=[Direction(trend, plunge, 15.0)], directional_bins=LagBins(lag, lags))
+        k = o["pairs_lag"] or int(min(lags, max(1, round(0.5 * fitted.range_along(fitted.axes[a]) / lag))))
+        if not 1 <= k <= lags:
+            raise UsageError(f"--pairs-lag {k}: give a lag bin from 1 to {lags}.")
+        pairs = bin_pairs(xyz, np.nan_to_num(values, nan=float(np.nanmedian(values))), sets, "directional", k, 0,
+                          max_pairs=o["max_pairs"], hole=hole, depth=depth)
+        chosen = {"axis": o["pairs_axis"], "lag_bin": k, "lag_m": k * lag, "angle_tolerance_deg": 15.0,
+                  "pairs_in_bin": pairs["pairs_in_bin"], "pairs_drawn": int(len(pairs["i"]))}
+    centre = None
+    if o["centre"]:
+        try:
+            centre = [float(v) for v in str(o["centre"]).split(",")]
+            assert len(centre) == 3
+        except (ValueError, AssertionError):
+            raise UsageError(f"--centre {o['centre']!r}: write X,Y,Z, for example 24500,61200,300.") from None
+    from viewer import scene as sc
+
+    try:
+        sc.prepare_offscreen(show=False)
+    except RuntimeError as exc:
+        raise UsageError(str(exc)) from None
+    built = sc.build_scene(xyz, hole, depth, values, model, value_name, pairs, volume, centre=centre,
+                           fraction=o["fraction"], per_structure=o["structures_apart"], hole_names=hole_names,
+                           collar_labels=o["collar_labels"])
+    images = {}
+    title = f"{value_name}" + (f", {model['domain']}" if model.get("domain") else "")
+    for view, name in (("minor", "scene.png"), ("plan", "scene_plan.png"), ("section", "scene_section.png")):
+        with atomic_path(out / name) as temporary:
+            sc.render(built, temporary.with_suffix(".png"), view, size=tuple(o["size"]), units=o["units"],
+                      title=title, model=fitted)
+            temporary.with_suffix(".png").replace(temporary)
+        images[view] = (out / name).read_bytes()
+    with atomic_path(out / "scene.html") as temporary:
+        sc.export_html(built, temporary.with_suffix(".html"), units=o["units"])
+        temporary.with_suffix(".html").replace(temporary)
+    sc.write_vtm(built, out / "scene.vtm")
+    if o["show"]:
+        import os
+
+        if not (os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY") or sys.platform in ("win32", "darwin")):
+            print("drillaxis view: no display here: --show skipped (the files are written)", file=sys.stderr)
+        else:
+            sc.show(built, units=o["units"])
+    return {"images": images, "pairs": chosen, "ranges_m": built.ranges.tolist(),
+            "levels_pct": built.notes.get("volume_levels_shown_pct", [])}
+
+
+def _scene_summary(drawn: dict, out: Path, console: Console):
+    console.say(f"scene -> {out / 'scene.png'} (down the minor axis), scene_plan.png, scene_section.png, "
+                "scene.html, scene.vtm")
+    p = drawn.get("pairs")
+    if p:
+        console.say(f"  pairs: {p['pairs_drawn']} of the {p['pairs_in_bin']:,} in lag bin {p['lag_bin']} "
+                    f"({p['lag_m']:.0f} m) along the {p['axis'].replace('_', '-')} axis")
+
+
+def cmd_view(args, console: Console) -> int:
+    import json
+
+    import numpy as np
+    import pandas as pd
+
+    out = _out_dir(args.out)
+    try:
+        model = json.loads(Path(args.model).read_text(encoding="utf-8"))
+        from .model import Model
+
+        Model.from_json(model)
+    except (OSError, ValueError, KeyError) as exc:
+        raise UsageError(f"--model {args.model!r}: cannot read a model from it ({exc}).") from None
+    value = args.value or model.get("variable")
+    domain = args.domain if args.domain is not None else model.get("domain")
+    xyz, values, hole, depth, _, unplaced, rows, _ = _read_composites(args.composites, value, domain, with_rows=True)
+    names = pd.factorize(rows["hole"])[1]
+    volume = None
+    stored = Path(args.model).with_name("volume.npz")
+    if stored.exists():
+        volume = dict(np.load(stored))
+    drawn = _scene(xyz, values, hole, depth, names, model, volume, args, out, value)
+    _scene_summary(drawn, out, console)
+    if unplaced:
+        console.say(f"  {unplaced} composite(s) without a position left out")
+    return 0
+
+
 def _data_summary(tables, rejected, result, xyz, value) -> dict:
     import numpy as np
 
@@ -933,6 +1072,15 @@ def _run_workflow(tables, rejected, result, args, out, step, value, domain, inpu
     st["model_axes_trend"] = trend_check(xyz, values, model.axes, threads=args.threads, coordinates=False)
     write_json(st, out / "stationarity.json")
     made = _stationarity_figures(st, xyz, values, out)
+    step("drawing the 3D scene")
+    import pandas as pd
+
+    try:
+        drawn = _scene(xyz, values, hole, depth, pd.factorize(rows["hole"])[1], fitted["model"], fitted["volume"],
+                       args, out, value)
+    except UsageError as exc:  # no off-screen rendering here: the rest of the run stands
+        drawn = {"images": {}, "skipped": str(exc)}
+    fitted["scene"] = drawn
     from viewer.report import write_report
 
     context = {"title": f"drillaxis report: {value}" + (f", {domain_text}" if domain_text else ""),
@@ -940,7 +1088,7 @@ def _run_workflow(tables, rejected, result, args, out, step, value, domain, inpu
                "findings": tables.findings, "composite": result.summary, "composite_check": result.check,
                "stationarity": st, "values": values, "xyz": xyz, "hole": hole, "model": fitted["model"],
                "fit_variograms": fitted["fit_variograms"], "volume": fitted["volume"], "pattern": fitted["pattern"],
-               "provenance": args.provenance, "caution": CAUTION, "figures": made,
+               "provenance": args.provenance, "caution": CAUTION, "figures": made, "scene": drawn,
                "warnings": fitted["model"]["warnings"] + [f"Drill pattern: {w}" for w in fitted["pattern"]["warnings"]]
                + [f"Fit: {w}" for w in fitted["model"]["fit"]["problems"]]}
     write_report(out / "report.html", context)
@@ -949,7 +1097,7 @@ def _run_workflow(tables, rejected, result, args, out, step, value, domain, inpu
 
 RUN_STAGES = ["checking stationarity", "searching directions", "fanning about the major axis",
               "refining the axes on the variogram volume", "fitting the model", "bootstrap",
-              "checking the drill pattern",
+              "checking the drill pattern", "drawing the 3D scene",
               "writing the report"]
 
 
@@ -979,9 +1127,17 @@ def cmd_run(args, console: Console) -> int:
     _stationarity_summary(st, out, console)
     _composite_summary(result, out, console)
     _model_summary(fitted["model"], out, console)
+    _scene_or_skip(fitted["scene"], out, console)
     console.say(f"report -> {out / 'report.html'}")
     console.say(f"  caution: {CAUTION}")
     return 0
+
+
+def _scene_or_skip(drawn: dict, out: Path, console: Console):
+    if drawn.get("skipped"):
+        console.say(f"  WARNING: the 3D scene was not drawn: {drawn['skipped']}")
+    else:
+        _scene_summary(drawn, out, console)
 
 
 def _truth_against_fit(truth: dict, data: dict, console: Console):
@@ -1047,6 +1203,7 @@ def cmd_demo(args, console: Console) -> int:
                 f"pitch {o['pitch']:.1f}")
     _model_summary(data, out, console)
     _truth_against_fit(truth["model"], data, console)
+    _scene_or_skip(fitted["scene"], out, console)
     console.say(f"report -> {out / 'report.html'}")
     console.say(f"  caution: {CAUTION}")
     console.say(f"done in {time.perf_counter() - started:.1f} s")
@@ -1054,8 +1211,8 @@ def cmd_demo(args, console: Console) -> int:
 
 
 COMMANDS = {"check": cmd_check, "desurvey": cmd_desurvey, "composite": cmd_composite,
-            "variogram": cmd_variogram, "stationarity": cmd_stationarity, "fit": cmd_fit, "run": cmd_run,
-            "demo": cmd_demo}
+            "variogram": cmd_variogram, "stationarity": cmd_stationarity, "fit": cmd_fit, "view": cmd_view,
+            "run": cmd_run, "demo": cmd_demo}
 
 
 def main(argv=None) -> int:

@@ -44,12 +44,12 @@ ONLY_CSS = "".join(
     f"body:has(#only-{key}:target) section:not(#{key})"
     + ("" if key == "summary" else f", body:has(#only-{key}:target) .lead") + " { display: none; }"
     for key in ("summary", "validation", "compositing", "stationarity", "variograms", "volume", "ellipsoid",
-                "pattern", "provenance", "cautions"))
+                "scene", "pattern", "provenance", "cautions"))
 
 SECTIONS = [("summary", "Data"), ("validation", "Validation"), ("compositing", "Compositing"),
             ("stationarity", "Stationarity"), ("variograms", "Variograms and model"), ("volume", "Variogram volume"),
-            ("ellipsoid", "Ellipsoid"), ("pattern", "Drill pattern"), ("provenance", "Provenance"),
-            ("cautions", "Cautions")]
+            ("ellipsoid", "Ellipsoid"), ("scene", "3D scene"), ("pattern", "Drill pattern"),
+            ("provenance", "Provenance"), ("cautions", "Cautions")]
 
 
 def e(value) -> str:
@@ -295,6 +295,30 @@ def _ellipsoid(c) -> str:
     return "".join(parts)
 
 
+def _scene(c) -> str:
+    drawn = c.get("scene") or {}
+    if drawn.get("skipped"):
+        return f'<div class="note">The 3D scene was not drawn: {e(drawn["skipped"])}</div>'
+    images = drawn.get("images") or {}
+    if not images:
+        return '<div class="note">No 3D scene.</div>'
+    parts = ["<p>The ellipsoid at the fitted ranges (95% of the sill) over the holes, with its axes; the pairs of one "
+             "lag bin along an axis, coloured by their squared difference; the variogram volume's isosurfaces "
+             "beside the data, in lag space at the same scale. Each view shows the holes and pairs within a slab "
+             "about the centre. The interactive scene is <code>scene.html</code>; the datasets are in "
+             "<code>scene.vtm</code>.</p>"]
+    p = drawn.get("pairs")
+    if p:
+        parts.append(f"<p>Pairs: {number(p['pairs_drawn'])} of the {number(p['pairs_in_bin'])} in lag bin "
+                     f"{number(p['lag_bin'])} ({number(p['lag_m'], 3)} m) along the {e(p['axis'].replace('_', '-'))} "
+                     f"axis, within {number(p['angle_tolerance_deg'])} degrees of it.</p>")
+    for view, caption in (("minor", "looking down the minor axis"), ("plan", "plan view"),
+                          ("section", "vertical section along the major axis")):
+        if view in images:
+            parts.append(f"<h3>{e(caption.capitalize())}</h3>" + image(images[view], caption))
+    return "".join(parts)
+
+
 def _pattern(c) -> str:
     p = c.get("pattern")
     if not p:
@@ -350,7 +374,7 @@ def build_report(context: dict) -> str:
     nav = "".join(f'<a href="#{key}">{e(name)}</a>' for key, name in SECTIONS)
     builders = {"summary": _summary, "validation": _validation, "compositing": _compositing,
                 "stationarity": _stationarity, "variograms": _variograms, "volume": _volume,
-                "ellipsoid": _ellipsoid, "pattern": _pattern, "provenance": _provenance}
+                "ellipsoid": _ellipsoid, "scene": _scene, "pattern": _pattern, "provenance": _provenance}
     body = []
     for key, name in SECTIONS:
         if key == "cautions":

@@ -7,34 +7,22 @@ findings, escaped).
 """
 
 import json
-import os
 import re
-import socket
 import subprocess
 import sys
-import threading
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 import pytest
 
 from synthetic_holes.program import FieldSpec, Structure, generate_program
 from synthetic_holes.recovery import recovery_spec
-from viewer.browser import find_chromium, screenshot
+from tests.viewer.browsing import Proxy, browser_or_skip, non_blank
+from viewer.browser import screenshot
 from viewer.report import SECTIONS
 
 ROOT = Path(__file__).resolve().parents[2]
 ODD_HOLE = "<b>X</b>"
-# the browser's own service traffic (time, updates, accounts): not requests of the page
-BROWSER_HOSTS = ("google.com", "googleapis.com", "gstatic.com", "gvt1.com", "googleusercontent.com")
-
-
-def browser_or_skip():
-    if find_chromium() is None:
-        if os.environ.get("DRILLAXIS_REQUIRE_BROWSER") == "1":
-            pytest.fail("no Chromium on this machine, and DRILLAXIS_REQUIRE_BROWSER=1 (CI installs it)")
-        pytest.skip("no Chromium on this machine (apt-get install chromium)")
 
 
 @pytest.fixture(scope="module")
@@ -98,53 +86,6 @@ def test_the_report_is_self_contained_and_escapes_data_text(run):
     for key, _ in SECTIONS:
         assert f'<section id="{key}">' in page
     assert "competent or qualified person" in page
-
-
-class Proxy:
-    """A local HTTP proxy that records the first line of every request and answers nothing."""
-
-    def __init__(self):
-        self.server = socket.socket()
-        self.server.bind(("127.0.0.1", 0))
-        self.server.listen(64)
-        self.address = f"http://127.0.0.1:{self.server.getsockname()[1]}"
-        self.lines = []
-        threading.Thread(target=self._serve, daemon=True).start()
-
-    def _serve(self):
-        while True:
-            try:
-                connection, _ = self.server.accept()
-            except OSError:
-                return
-            connection.settimeout(2.0)
-            try:
-                self.lines.append(connection.recv(4096).split(b"\r\n")[0].decode("latin-1"))
-            except OSError:
-                pass
-            connection.close()
-
-    def page_requests(self):
-        hosts = []
-        for line in self.lines:
-            parts = line.split()
-            target = parts[1] if len(parts) > 1 else line
-            host = re.sub(r"^[a-z]+://", "", target).split("/")[0].split(":")[0]
-            if not any(host == h or host.endswith("." + h) for h in BROWSER_HOSTS):
-                hosts.append(host)
-        return hosts
-
-    def close(self):
-        self.server.close()
-
-
-def non_blank(png):
-    import matplotlib.image as mpimg
-
-    image = mpimg.imread(png)[..., :3]
-    background = image[0, 0]
-    share = float((np.abs(image - background).sum(axis=2) > 0.05).mean())
-    return share, float(image.std())
 
 
 def test_chromium_renders_the_report_with_no_network_request(run, tmp_path):
