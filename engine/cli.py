@@ -1183,7 +1183,8 @@ def cmd_demo(args, console: Console) -> int:
         trace, traces, samples = _desurvey(tables, table_args, out, console, step)
         result = _composite(tables, rejected, table_args, out, step, trace)
         fit_args = argparse.Namespace(value="au_gpt", transform="none", lag=None, lags=12, structures="auto",
-                                      bootstrap=50, seed=0, threads=None, detrend="none", demo_seed=args.seed)
+                                      bootstrap=50, seed=0, threads=None, detrend="none", demo_seed=args.seed,
+                                      units="g/t")
         st, fitted = _run_workflow(tables, rejected, result, fit_args, out, step, "au_gpt", ("domain", "FRESH"), paths)
         data = fitted["model"]
     truth = program.truth

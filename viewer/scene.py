@@ -302,7 +302,7 @@ def view_blocks(scene: Scene, view: str, half_thickness_m: float | None = None, 
         for key in ("volume", "volume_isosurfaces"):
             if key in b:
                 b[key] = b[key].translate(shift, inplace=False)
-        labels.append((new + np.asarray(view_frame(scene, view)[1]) * reach * 1.1, "variogram volume (lag space)",
+        labels.append((new - np.asarray(view_frame(scene, view)[1]) * reach * 0.75, "variogram volume (lag space)",
                        "#3a9a5b"))
     b["_labels"] = labels
     b["_slab_m"] = half_thickness_m
