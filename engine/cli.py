@@ -155,6 +155,8 @@ def _scene_options(parser: argparse.ArgumentParser):
     group = parser.add_argument_group("scene")
     group.add_argument("--pairs-axis", choices=("major", "semi_major", "minor", "none"), default="major",
                        help="draw the pairs of a lag bin along this model axis (default: major)")
+    group.add_argument("--pairs-direction", metavar="TREND/PLUNGE", help="draw the pairs along this direction "
+                       "instead of a model axis")
     group.add_argument("--pairs-lag", type=int, metavar="K", help="lag bin 1..N of those pairs (default: the one "
                        "nearest half the range along the axis)")
     group.add_argument("--max-pairs", type=int, default=400, metavar="N", help="pairs drawn at most (default 400)")
@@ -924,8 +926,9 @@ def cmd_fit(args, console: Console) -> int:
     return 0
 
 
-SCENE_DEFAULTS = dict(pairs_axis="major", pairs_lag=None, max_pairs=400, fraction=1.0, structures_apart=False,
-                      centre=None, collar_labels=False, size=(1600, 1200), units="", show=False)
+SCENE_DEFAULTS = dict(pairs_axis="major", pairs_direction=None, pairs_lag=None, max_pairs=400, fraction=1.0,
+                      structures_apart=False, centre=None, collar_labels=False, size=(1600, 1200), units="",
+                      show=False)
 
 
 def _scene(xyz, values, hole, depth, hole_names, model: dict, volume, args, out: Path, value_name: str) -> dict:
@@ -941,18 +944,30 @@ def _scene(xyz, values, hole, depth, hole_names, model: dict, volume, args, out:
     o = {**SCENE_DEFAULTS, **{k: v for k, v in vars(args).items() if k in SCENE_DEFAULTS}}
     fitted = Model.from_json(model)
     pairs, chosen = None, None
-    if o["pairs_axis"] != "none":
-        a = AXIS_NAMES.index(o["pairs_axis"])
-        trend, plunge = trend_plunge(fitted.axes[a])
+    if o["pairs_axis"] != "none" or o["pairs_direction"]:
+        if o["pairs_direction"]:
+            try:
+                trend, plunge = (float(v) for v in str(o["pairs_direction"]).split("/"))
+            except ValueError:
+                raise UsageError(f"--pairs-direction {o['pairs_direction']!r}: write trend/plunge, for example "
+                                 "45/10.") from None
+            from .orientation import vector_from_trend_plunge
+
+            along = vector_from_trend_plunge(trend, plunge)
+            label = f"{trend:g}/{plunge:g}"
+        else:
+            along = fitted.axes[AXIS_NAMES.index(o["pairs_axis"])]
+            trend, plunge = trend_plunge(along)
+            label = o["pairs_axis"]
         lag = float(model.get("fit", {}).get("lag_m") or max(np.ptp(xyz, axis=0)) / 30)
         lags = 12
         sets = Sets(directions=[Direction(trend, plunge, 15.0)], directional_bins=LagBins(lag, lags))
-        k = o["pairs_lag"] or int(min(lags, max(1, round(0.5 * fitted.range_along(fitted.axes[a]) / lag))))
+        k = o["pairs_lag"] or int(min(lags, max(1, round(0.5 * fitted.range_along(along) / lag))))
         if not 1 <= k <= lags:
             raise UsageError(f"--pairs-lag {k}: give a lag bin from 1 to {lags}.")
         pairs = bin_pairs(xyz, np.nan_to_num(values, nan=float(np.nanmedian(values))), sets, "directional", k, 0,
                           max_pairs=o["max_pairs"], hole=hole, depth=depth)
-        chosen = {"axis": o["pairs_axis"], "lag_bin": k, "lag_m": k * lag, "angle_tolerance_deg": 15.0,
+        chosen = {"axis": label, "lag_bin": k, "lag_m": k * lag, "angle_tolerance_deg": 15.0,
                   "pairs_in_bin": pairs["pairs_in_bin"], "pairs_drawn": int(len(pairs["i"]))}
     centre = None
     if o["centre"]:
@@ -998,8 +1013,9 @@ def _scene_summary(drawn: dict, out: Path, console: Console):
                 "scene.html, scene.vtm")
     p = drawn.get("pairs")
     if p:
+        where = f"direction {p['axis']}" if "/" in p["axis"] else f"the {p['axis'].replace('_', '-')} axis"
         console.say(f"  pairs: {p['pairs_drawn']} of the {p['pairs_in_bin']:,} in lag bin {p['lag_bin']} "
-                    f"({p['lag_m']:.0f} m) along the {p['axis'].replace('_', '-')} axis")
+                    f"({p['lag_m']:.0f} m) along {where}")
 
 
 def cmd_view(args, console: Console) -> int:
