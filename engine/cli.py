@@ -314,8 +314,10 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--domain", metavar="COLUMN=VALUE", help="composite by domain column COLUMN and fit VALUE's "
                    "composites only")
     p.add_argument("--length", type=float, default=2.0, metavar="M", help="composite length (default 2)")
+    p.add_argument("--units", default="", metavar="TEXT", help="units of the value, for the scene's colour bar")
     _fit_options(p)
     _detrend_option(p)
+    _scene_options(p)
     _common_options(p)
 
     p = commands.add_parser("demo", help="run the workflow on a built-in synthetic drill program",
