@@ -782,39 +782,34 @@ def _model_summary(data: dict, out: Path, console: Console):
         console.say(f"  PROBLEM: {text}")
 
 
-def _stationarity(xyz, values, hole, args, out: Path, domain_text=None, labels=None, rows=None):
-    """The stationarity checks; write stationarity.json (and trend.csv with --detrend). Returns the
-    data and, with --detrend, the residuals (else None)."""
-    import numpy as np
-
+def _stationarity(xyz, values, hole, args, out: Path, rows, domain_text=None, labels=None, model_axes=None):
+    """The stationarity checks (with swaths along ``model_axes`` when given); write
+    stationarity.json (and trend.csv, from ``rows``, the composites used, with --detrend). Returns
+    the data and, with --detrend, the residuals (else None)."""
     from .errors import TableError
     from .outputs import write_csv, write_json
-    from .stationarity import diagnose, domain_summary, fit_trend, trend_values
+    from .stationarity import detrend as fit_detrend
+    from .stationarity import diagnose, domain_summary, trend_check
 
     try:
         report = diagnose(xyz, values, hole, threads=args.threads)
     except ValueError as exc:
         raise TableError(f"stationarity of {args.value!r}: {exc}.") from None
     data = {"schema": "drillaxis.stationarity/1", "variable": args.value, "domain": domain_text, **report}
+    if model_axes is not None:
+        data["model_axes_trend"] = trend_check(xyz, values, model_axes, threads=args.threads, coordinates=False)
     if labels is not None:
         data["checks"]["mixture"]["domains"] = domain_summary(*labels)
     residuals = None
-    detrend = getattr(args, "detrend", "none")
-    if detrend != "none":
-        ok = np.isfinite(values)
-        trend = fit_trend(xyz[ok], values[ok], detrend)
-        fitted = trend_values(trend, xyz)
+    kind = getattr(args, "detrend", "none")
+    if kind != "none":
+        trend, fitted = fit_detrend(xyz, values, kind)
         residuals = values - fitted
         again = diagnose(xyz, residuals, hole, threads=args.threads)
         trend["residual_flags"] = again["flags"]
         trend["residual_warnings"] = again["warnings"]
         data["detrend"] = trend
-        frame = rows[[c for c in ("hole", "from", "to", "x", "y", "z") if c in rows.columns]].copy() \
-            if rows is not None else None
-        if frame is None or len(frame) != len(values):
-            import pandas as pd
-
-            frame = pd.DataFrame({"x": xyz[:, 0], "y": xyz[:, 1], "z": xyz[:, 2]})
+        frame = rows[[c for c in ("hole", "from", "to", "x", "y", "z") if c in rows.columns]].copy()
         frame[args.value] = values
         frame["trend"] = fitted
         frame["residual"] = residuals
@@ -860,9 +855,20 @@ def _lead_warnings(data: dict) -> list:
     return [f"Stationarity: {text}" for text in data["warnings"]]
 
 
-def cmd_stationarity(args, console: Console) -> int:
+def _read_model(path):
+    """model.json as a dictionary and as a Model; a usage error when it cannot be read."""
     import json
 
+    from .model import Model
+
+    try:
+        data = json.loads(Path(path).read_text(encoding="utf-8"))
+        return data, Model.from_json(data)
+    except (OSError, ValueError, KeyError) as exc:
+        raise UsageError(f"--model {str(path)!r}: cannot read a model from it ({exc}).") from None
+
+
+def cmd_stationarity(args, console: Console) -> int:
     import numpy as np
 
     from .provenance import provenance
@@ -877,18 +883,8 @@ def cmd_stationarity(args, console: Console) -> int:
 
         labels = (pd.to_numeric(whole[args.value], errors="coerce").to_numpy(dtype=np.float64), whole[column])
     args.provenance = provenance({"composites": args.composites}, _options_of(args), {"composites": len(whole)})
-    data, _ = _stationarity(xyz, values, hole, args, out, args.domain, labels, rows)
-    if args.model:
-        from .model import Model
-        from .outputs import write_json
-        from .stationarity import trend_check
-
-        try:
-            model = Model.from_json(json.loads(Path(args.model).read_text(encoding="utf-8")))
-        except (OSError, ValueError, KeyError) as exc:
-            raise UsageError(f"--model {args.model!r}: cannot read a model from it ({exc}).") from None
-        data["model_axes_trend"] = trend_check(xyz, values, model.axes, threads=args.threads, coordinates=False)
-        write_json(data, out / "stationarity.json")
+    axes = _read_model(args.model)[1].axes if args.model else None
+    data, _ = _stationarity(xyz, values, hole, args, out, rows, args.domain, labels, model_axes=axes)
     _stationarity_figures(data, xyz, values, out)
     _stationarity_summary(data, out, console)
     if unplaced:
@@ -913,13 +909,10 @@ def cmd_fit(args, console: Console) -> int:
         args.provenance = provenance({"composites": args.composites}, _options_of(args), {"composites": len(values)})
         trend = None
         if args.detrend != "none":
-            import numpy as np
+            from .stationarity import detrend
 
-            from .stationarity import fit_trend, trend_values
-
-            ok = np.isfinite(values)
-            trend = fit_trend(xyz[ok], values[ok], args.detrend)
-            values = values - trend_values(trend, xyz)
+            trend, fitted = detrend(xyz, values, args.detrend)
+            values = values - fitted
         fitted = _fit_and_check(xyz, values, hole, depth, length, args, out, step, args.domain, detrend=trend)
     _model_summary(fitted["model"], out, console)
     console.say(f"  caution: {CAUTION}")
@@ -956,11 +949,11 @@ def _scene(xyz, values, hole, depth, hole_names, model: dict, volume, args, out:
             from .orientation import vector_from_trend_plunge
 
             along = vector_from_trend_plunge(trend, plunge)
-            label = f"{trend:g}/{plunge:g}"
+            label = f"direction {trend:g}/{plunge:g}"
         else:
             along = fitted.axes[AXIS_NAMES.index(o["pairs_axis"])]
             trend, plunge = trend_plunge(along)
-            label = o["pairs_axis"]
+            label = f"the {o['pairs_axis'].replace('_', '-')} axis"
         lag = float(model.get("fit", {}).get("lag_m") or max(np.ptp(xyz, axis=0)) / 30)
         lags = 12
         sets = Sets(directions=[Direction(trend, plunge, 15.0)], directional_bins=LagBins(lag, lags))
@@ -969,7 +962,7 @@ def _scene(xyz, values, hole, depth, hole_names, model: dict, volume, args, out:
             raise UsageError(f"--pairs-lag {k}: give a lag bin from 1 to {lags}.")
         pairs = bin_pairs(xyz, np.nan_to_num(values, nan=float(np.nanmedian(values))), sets, "directional", k, 0,
                           max_pairs=o["max_pairs"], hole=hole, depth=depth)
-        chosen = {"axis": label, "lag_bin": k, "lag_m": k * lag, "angle_tolerance_deg": 15.0,
+        chosen = {"along": label, "lag_bin": k, "lag_m": k * lag, "angle_tolerance_deg": 15.0,
                   "pairs_in_bin": pairs["pairs_in_bin"], "pairs_drawn": int(len(pairs["i"]))}
     centre = None
     if o["centre"]:
@@ -990,14 +983,11 @@ def _scene(xyz, values, hole, depth, hole_names, model: dict, volume, args, out:
     images = {}
     title = f"{value_name}" + (f", {model['domain']}" if model.get("domain") else "")
     for view, name in (("minor", "scene.png"), ("plan", "scene_plan.png"), ("section", "scene_section.png")):
-        with atomic_path(out / name) as temporary:
-            sc.render(built, temporary.with_suffix(".png"), view, size=tuple(o["size"]), units=o["units"],
-                      title=title, model=fitted)
-            temporary.with_suffix(".png").replace(temporary)
+        with atomic_path(out / name, keep_extension=True) as temporary:
+            sc.render(built, temporary, view, size=tuple(o["size"]), units=o["units"], title=title, model=fitted)
         images[view] = (out / name).read_bytes()
-    with atomic_path(out / "scene.html") as temporary:
-        sc.export_html(built, temporary.with_suffix(".html"), units=o["units"])
-        temporary.with_suffix(".html").replace(temporary)
+    with atomic_path(out / "scene.html", keep_extension=True) as temporary:
+        sc.export_html(built, temporary, units=o["units"])
     sc.write_vtm(built, out / "scene.vtm")
     if o["show"]:
         import os
@@ -1006,8 +996,7 @@ def _scene(xyz, values, hole, depth, hole_names, model: dict, volume, args, out:
             print("drillaxis view: no display here: --show skipped (the files are written)", file=sys.stderr)
         else:
             sc.show(built, units=o["units"])
-    return {"images": images, "pairs": chosen, "ranges_m": built.ranges.tolist(),
-            "levels_pct": built.notes.get("volume_levels_shown_pct", [])}
+    return {"images": images, "pairs": chosen}
 
 
 def _scene_summary(drawn: dict, out: Path, console: Console):
@@ -1015,25 +1004,16 @@ def _scene_summary(drawn: dict, out: Path, console: Console):
                 "scene.html, scene.vtm")
     p = drawn.get("pairs")
     if p:
-        where = f"direction {p['axis']}" if "/" in p["axis"] else f"the {p['axis'].replace('_', '-')} axis"
         console.say(f"  pairs: {p['pairs_drawn']} of the {p['pairs_in_bin']:,} in lag bin {p['lag_bin']} "
-                    f"({p['lag_m']:.0f} m) along {where}")
+                    f"({p['lag_m']:.0f} m) along {p['along']}")
 
 
 def cmd_view(args, console: Console) -> int:
-    import json
-
     import numpy as np
     import pandas as pd
 
     out = _out_dir(args.out)
-    try:
-        model = json.loads(Path(args.model).read_text(encoding="utf-8"))
-        from .model import Model
-
-        Model.from_json(model)
-    except (OSError, ValueError, KeyError) as exc:
-        raise UsageError(f"--model {args.model!r}: cannot read a model from it ({exc}).") from None
+    model, _ = _read_model(args.model)
     value = args.value or model.get("variable")
     domain = args.domain if args.domain is not None else model.get("domain")
     xyz, values, hole, depth, _, unplaced, rows, _ = _read_composites(args.composites, value, domain, with_rows=True)
@@ -1078,7 +1058,7 @@ def _run_workflow(tables, rejected, result, args, out, step, value, domain, inpu
     labels = None
     if column and column in result.composites.columns:
         labels = (result.composites[value].to_numpy(dtype=np.float64), result.composites[column])
-    st, residuals = _stationarity(xyz, values, hole, args, out, domain_text, labels, rows)
+    st, residuals = _stationarity(xyz, values, hole, args, out, rows, domain_text, labels)
     fitted = _fit_and_check(xyz, values if residuals is None else residuals, hole, depth, length, args, out, step,
                             domain_text, lead=_lead_warnings(st), detrend=st.get("detrend"))
     step("writing the report")

@@ -14,11 +14,14 @@ import pandas as pd
 
 
 @contextlib.contextmanager
-def atomic_path(path):
-    """Yield a temporary path beside ``path``; on success rename it to ``path``, else remove it."""
+def atomic_path(path, keep_extension: bool = False):
+    """Yield a temporary path beside ``path``; on success rename it to ``path``, else remove it.
+    With ``keep_extension`` the temporary name ends in the final one's extension too (for writers
+    that choose the format by it)."""
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".part", dir=path.parent)
+    suffix = ".part" + (path.suffix if keep_extension else "")
+    handle, temporary = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix, dir=path.parent)
     os.close(handle)
     umask = os.umask(0)
     os.umask(umask)

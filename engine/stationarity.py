@@ -184,7 +184,7 @@ def _exponential_fit(h, gamma, counts, span, min_pairs, variance):
 
 
 def trend_check(xyz, values, axes=None, options: StationarityOptions | None = None, threads=None,
-                centre=None, coordinates: bool = True) -> dict:
+                coordinates: bool = True) -> dict:
     """Swaths and the correlation-aware slope test along east, north and elevation (unless
     ``coordinates`` is false) and along each of ``axes`` (see the module notes)."""
     o = options or StationarityOptions()
@@ -194,9 +194,8 @@ def trend_check(xyz, values, axes=None, options: StationarityOptions | None = No
     keep = np.isfinite(values) & np.isfinite(xyz).all(axis=1)
     xyz, values = xyz[keep], values[keep]
     named = _axes_to_test(axes, coordinates)
-    centre = xyz.mean(axis=0) if centre is None else centre
-    s_all = np.stack([(xyz - centre) @ u for _, u in named], axis=1)  # (n, q) coordinates along each axis
-    s_c = s_all - s_all.mean(axis=0)
+    # (n, q) coordinates along each axis from the centre of the composites: centred already
+    s_c = np.stack([(xyz - xyz.mean(axis=0)) @ u for _, u in named], axis=1)
     z_c = values - values.mean()
     sd = float(values.std(ddof=1))
     ss = (s_c ** 2).sum(axis=0)
@@ -210,11 +209,10 @@ def trend_check(xyz, values, axes=None, options: StationarityOptions | None = No
     span = float(np.linalg.norm(xyz[sub].max(axis=0) - xyz[sub].min(axis=0)))
     width = max(span / o.classes, 1e-9) * (1 + 1e-9)
     sums = class_sums(xyz[sub], residual[sub], s_c[sub], width, o.classes, threads)
-    q = len(named)
+    q = len(named)  # the number of tests too
     counts = sums[:, 0]
     scale = n * (n - 1) / (m * (m - 1)) if m > 1 else 0.0
     out_axes = []
-    tests = len(named)
     centres = np.where(counts > 0, sums[:, 1] / np.maximum(counts, 1), (np.arange(o.classes) + 0.5) * width)
     for a, (name, u) in enumerate(named):
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -222,25 +220,25 @@ def trend_check(xyz, values, axes=None, options: StationarityOptions | None = No
         nugget, sill, range_m = _exponential_fit(centres, gamma, counts, span, o.min_pairs, sigma2[a])
         cov = sill * np.exp(-3.0 * centres / range_m)
         cross = sums[:, 2 + q + a] * scale
-        numerator = ss[a] * (nugget + sill) + 2.0 * float((cross * cov).sum())
         c0 = nugget + sill
+        numerator = ss[a] * c0 + 2.0 * float((cross * cov).sum())
         numerator = max(numerator, ss[a] * c0 / n)  # at most n-fold less than independent
         se = math.sqrt(numerator) / ss[a] if ss[a] > 0 else math.inf
         n_eff = float(n * ss[a] * c0 / numerator) if numerator > 0 else float(n)
         n_eff = min(max(n_eff, 3.0), float(n))
         t = float(slope[a] / se) if se > 0 and math.isfinite(se) else 0.0
         p = float(2 * stats.t.sf(abs(t), max(n_eff - 2.0, 1.0)))
-        extent = float(s_all[:, a].max() - s_all[:, a].min())
+        extent = float(np.ptp(s_c[:, a]))
         change = float(slope[a] * extent)
         change_sd = abs(change) / sd if sd > 0 else 0.0
-        flag = bool(p < o.alpha / tests and change_sd >= o.min_trend_sd)
+        flag = bool(p < o.alpha / q and change_sd >= o.min_trend_sd)
         out_axes.append({
             "name": name, "vector": [float(c) for c in u], "slope_per_100m": float(100 * slope[a]),
             "slope_standard_error_per_100m": float(100 * se), "t": t, "effective_samples": n_eff, "p": p,
             "extent_m": extent, "change_over_extent": change, "change_in_sd": change_sd,
             "residual_covariance": {"nugget": nugget, "sill": sill, "range_m": range_m, "shape": "exponential"},
             "flag": flag,
-            "slices": _swath(s_all[:, a], values, o.slices),
+            "slices": _swath(s_c[:, a], values, o.slices),
         })
     flagged = [a for a in out_axes if a["flag"]]
     if flagged:
@@ -252,7 +250,7 @@ def trend_check(xyz, values, axes=None, options: StationarityOptions | None = No
         sentence = ("No trend in the mean: no axis has a slope that is both significant once spatial "
                     "correlation is allowed for and larger than "
                     f"{o.min_trend_sd:g} standard deviations over the extent.")
-    return {"flag": bool(flagged), "axes": out_axes, "alpha": o.alpha, "tests": tests,
+    return {"flag": bool(flagged), "axes": out_axes, "alpha": o.alpha, "tests": q,
             "sample_for_correlation": m, "sentence": sentence}
 
 
@@ -331,8 +329,8 @@ def gaussian_mixture(y, components: int = 2, iterations: int = 400, tol: float =
         mu, sd = float(y.mean()), max(float(y.std()), math.sqrt(floor))
         return np.array([1.0]), np.array([mu]), np.array([sd]), float(np.log(_normal_pdf(y, mu, sd)).sum())
     best = None
+    order = np.sort(y)
     for split in (0.5, 0.85, 0.15):
-        order = np.sort(y)
         cut = order[int(split * (n - 1))]
         groups = [y[y <= cut], y[y > cut]]
         if min(len(g) for g in groups) < 2:
@@ -390,8 +388,9 @@ def mixture_check(values, options: StationarityOptions | None = None) -> dict:
     post = w[1] * _normal_pdf(grid, mu[1], sd[1])
     post = post / np.maximum(post + w[0] * _normal_pdf(grid, mu[0], sd[0]), 1e-300)
     between = (grid >= mu[0]) & (grid <= mu[1])
-    candidates = grid[between] if between.any() else grid
-    cross = candidates[np.argmin(np.abs((post[between] if between.any() else post) - 0.5))]
+    if not between.any():
+        between[:] = True
+    cross = grid[between][np.argmin(np.abs(post[between] - 0.5))]
     split = float(math.exp(cross) if use_log else cross)
     back = (lambda v: float(math.exp(v))) if use_log else float
     result.update({
@@ -454,7 +453,7 @@ def _curves(xyz, values, hole, lags, threads):
     curves = {}
     for key, part in table.groupby("direction", sort=False):
         name = names.get(key, key)
-        curves[name] = {"lag": part["lag"].to_numpy(), "distance": part["distance"].to_numpy(),
+        curves[name] = {"distance": part["distance"].to_numpy(),
                         "pairs": part["pairs"].to_numpy(), "gamma": part["gamma"].to_numpy(),
                         "limit_m": limits[name]}
     return curves
@@ -464,12 +463,11 @@ def _slope(h, g):
     return float(np.polyfit(h, g, 1)[0]) if len(h) >= 2 and np.ptp(h) > 0 else 0.0
 
 
-def sill_check(xyz, values, hole=None, options: StationarityOptions | None = None, threads=None, curves=None) -> dict:
+def sill_check(xyz, values, hole=None, options: StationarityOptions | None = None, threads=None) -> dict:
     o = options or StationarityOptions()
     variance = float(values.var(ddof=1))
-    curves = curves or _curves(xyz, values, hole, o.lags, threads)
     sets = []
-    for name, c in curves.items():
+    for name, c in _curves(xyz, values, hole, o.lags, threads).items():
         ok = (c["pairs"] >= o.min_pairs) & np.isfinite(c["gamma"]) & (c["distance"] <= c["limit_m"])
         h, g = c["distance"][ok], c["gamma"][ok]
         entry = {"name": name, "distance": c["distance"].tolist(), "pairs": c["pairs"].tolist(),
@@ -575,6 +573,13 @@ def fit_trend(xyz, values, kind: str = "linear") -> dict:
 def trend_values(trend: dict, xyz) -> np.ndarray:
     design = _design(np.asarray(xyz, dtype=np.float64), np.asarray(trend["centre"]), trend["unit_m"], trend["kind"])
     return design @ np.asarray(trend["coefficients"])
+
+
+def detrend(xyz, values, kind: str):
+    """The trend fitted to the finite values, and its value at every position: (trend, fitted)."""
+    ok = np.isfinite(values)
+    trend = fit_trend(xyz[ok], values[ok], kind)
+    return trend, trend_values(trend, xyz)
 
 
 def diagnose(xyz, values, hole=None, axes=None, options: StationarityOptions | None = None,

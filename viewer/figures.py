@@ -340,10 +340,9 @@ def drill_pattern(xyz, hole, pattern: dict, model: dict | None) -> bytes:
         for name, colour in (("major", FLAG), ("semi_major", MODEL)):
             v = np.asarray(model["axes"][name][:2])
             r = max(s["ranges"][name] for s in model["structures"])
-            horizontal = float(np.linalg.norm(v))
-            if horizontal < 1e-6:
+            if float(np.linalg.norm(v)) < 1e-6:  # a vertical axis has no length in plan
                 continue
-            end = v / horizontal * r * horizontal
+            end = v * r  # the range along the axis, seen in plan
             ax.annotate("", xy=centre + end, xytext=centre - end,
                         arrowprops=dict(arrowstyle="<->", color=colour, linewidth=1.8))
             ax.plot([], [], color=colour, label=f"{name.replace('_', '-')} range in plan")

@@ -310,8 +310,8 @@ def _scene(c) -> str:
     p = drawn.get("pairs")
     if p:
         parts.append(f"<p>Pairs: {number(p['pairs_drawn'])} of the {number(p['pairs_in_bin'])} in lag bin "
-                     f"{number(p['lag_bin'])} ({number(p['lag_m'], 3)} m) along the {e(p['axis'].replace('_', '-'))} "
-                     f"axis, within {number(p['angle_tolerance_deg'])} degrees of it.</p>")
+                     f"{number(p['lag_bin'])} ({number(p['lag_m'], 3)} m) along {e(p['along'])}, within "
+                     f"{number(p['angle_tolerance_deg'])} degrees of it.</p>")
     for view, caption in (("minor", "looking down the minor axis"), ("plan", "plan view"),
                           ("section", "vertical section along the major axis")):
         if view in images:

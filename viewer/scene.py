@@ -14,6 +14,7 @@ is chosen before VTK starts unless ``VTK_DEFAULT_OPENGL_WINDOW`` says otherwise.
 from __future__ import annotations
 
 import ctypes.util
+import dataclasses
 import math
 import os
 import tempfile
@@ -25,6 +26,7 @@ import numpy as np
 AXIS_COLOURS = {"major": "#c0262d", "semi_major": "#d9711c", "minor": "#1f5fa8"}
 AXIS_LABELS = {"major": "major", "semi_major": "semi-major", "minor": "minor"}
 VIEWS = ("minor", "plan", "section")
+VOLUME_LABEL = "variogram volume (lag space)"
 
 
 def prepare_offscreen(show: bool = False) -> None:
@@ -67,8 +69,8 @@ def _lines(points_a, points_b):
 
 
 def traces(xyz, hole, depth, values, radius_m: float):
-    """One polyline per hole through its composites in down-hole order, as tubes with the value
-    interpolated along them; cell data ``hole`` numbers the holes (0..holes-1)."""
+    """One polyline per hole through its composites in down-hole order, drawn as a tube with the
+    value interpolated along it; cell data ``hole`` holds each tube's hole number."""
     import pyvista as pv
 
     order = np.lexsort((depth, hole))
@@ -84,8 +86,7 @@ def traces(xyz, hole, depth, values, radius_m: float):
     line = pv.PolyData(xyz[order], lines=np.concatenate(cells) if cells else None)
     line.point_data["value"] = np.nan_to_num(values[order], nan=float(np.nanmedian(values)))
     line.cell_data["hole"] = np.asarray(number, dtype=np.int64)
-    tube = line.tube(radius=radius_m, n_sides=8, capping=True)
-    return line, tube
+    return line.tube(radius=radius_m, n_sides=8, capping=True)
 
 
 def ellipsoid(centre, axes, ranges, resolution: int = 72):
@@ -196,8 +197,7 @@ def build_scene(xyz, hole, depth, values, model: dict, value_name: str = "value"
     centre = xyz.mean(axis=0) if centre is None else np.asarray(centre, dtype=np.float64)
     extent = float(np.max(np.ptp(xyz, axis=0)))
     blocks = {}
-    line, tube = traces(xyz, hole, np.asarray(depth, dtype=np.float64), values, radius_m=max(extent / 350, 0.2))
-    blocks["traces"] = tube
+    blocks["traces"] = traces(xyz, hole, np.asarray(depth, dtype=np.float64), values, radius_m=max(extent / 350, 0.2))
     points = pv.PolyData(xyz)
     points.point_data["value"] = values
     blocks["composites"] = points
@@ -229,15 +229,13 @@ def build_scene(xyz, hole, depth, values, model: dict, value_name: str = "value"
             shown = sorted(set(np.round(np.asarray(surfaces.point_data["level"]) / sill * 100).astype(int)))
             notes["volume_levels_shown_pct"] = shown
         notes["volume_offset"] = offset
-        notes["volume_levels"] = levels
-        labels.append((offset + np.array([0.0, 0.0, reach[2] * 1.25]), "variogram volume (lag space)", "#3a9a5b"))
+        labels.append((offset + np.array([0.0, 0.0, reach[2] * 1.25]), VOLUME_LABEL, "#3a9a5b"))
     if collar_labels and hole_names is not None:
-        tops = []
-        for k in np.unique(hole):
-            mask = hole == k
-            top = xyz[mask][np.argmax(xyz[mask, 2])]
-            tops.append((top + [0, 0, extent / 80], str(hole_names[k]), "#333333"))
-        labels += tops
+        from engine.pattern import hole_ends
+
+        tops, _ = hole_ends(xyz, hole)  # holes in ascending order of their numbers
+        labels += [(top + [0, 0, extent / 80], str(hole_names[k]), "#333333")
+                   for k, top in zip(np.unique(hole), tops)]
     return Scene(blocks, centre, axes, ranges, value_name, labels, notes)
 
 
@@ -265,11 +263,12 @@ def view_frame(scene: Scene, view: str):
     return toward, up, right / np.linalg.norm(right)
 
 
-def view_blocks(scene: Scene, view: str, half_thickness_m: float | None = None, model=None) -> dict:
-    """The scene's datasets for one view: traces, composites and pairs cut to a slab about the
-    centre, normal to the view (half as thick as the model's range along the view, at least a
-    twentieth of the extent), and the variogram volume moved to the right of the data on screen."""
-    toward, _, right = view_frame(scene, view)
+def view_scene(scene: Scene, view: str, half_thickness_m: float | None = None, model=None) -> Scene:
+    """The scene as one view shows it: traces, composites and pairs cut to a slab about the centre,
+    normal to the view, reaching either side as far as the model's 95%-of-sill distance along the
+    view (at least a twentieth of the extent; ``notes["slab_m"]``), and the variogram volume moved
+    to the right of the data on screen."""
+    toward, up, right = view_frame(scene, view)
     b = dict(scene.blocks)
     xyz = np.asarray(b["composites"].points)
     if half_thickness_m is None:
@@ -289,10 +288,11 @@ def view_blocks(scene: Scene, view: str, half_thickness_m: float | None = None, 
         ends = np.asarray(b["pairs"].points)
         middle = 0.5 * (ends[0::2] + ends[1::2])
         keep = np.flatnonzero(np.abs(offsets(middle)) <= half_thickness_m)
-        b["pairs"] = b["pairs"].extract_cells(keep) if len(keep) else None
-        if b["pairs"] is None:
+        if len(keep):
+            b["pairs"] = b["pairs"].extract_cells(keep)
+        else:
             del b["pairs"]
-    labels = [entry for entry in scene.labels if "lag space" not in entry[1]]
+    labels = [entry for entry in scene.labels if entry[1] != VOLUME_LABEL]
     if "volume" in b:
         old = np.asarray(scene.notes["volume_offset"])
         half_width = float(np.max(np.abs((xyz - scene.centre) @ right)))
@@ -302,11 +302,8 @@ def view_blocks(scene: Scene, view: str, half_thickness_m: float | None = None, 
         for key in ("volume", "volume_isosurfaces"):
             if key in b:
                 b[key] = b[key].translate(shift, inplace=False)
-        labels.append((new - np.asarray(view_frame(scene, view)[1]) * reach * 0.75, "variogram volume (lag space)",
-                       "#3a9a5b"))
-    b["_labels"] = labels
-    b["_slab_m"] = half_thickness_m
-    return b
+        labels.append((new - up * reach * 0.75, VOLUME_LABEL, "#3a9a5b"))
+    return dataclasses.replace(scene, blocks=b, labels=labels, notes={**scene.notes, "slab_m": half_thickness_m})
 
 
 def _camera(plotter, toward, up, bounds):
@@ -334,9 +331,9 @@ def _north_and_scale(plotter, bounds, extent):
                              show_points=False, always_visible=True, name="north_scale_labels")
 
 
-def draw(plotter, scene: Scene, units: str = "", blocks: dict | None = None, pair_bar: bool = True):
-    """Add the scene's datasets (or ``blocks``, the same names cut for a view) to a plotter."""
-    b = scene.blocks if blocks is None else blocks
+def draw(plotter, scene: Scene, units: str = "", pair_bar: bool = True):
+    """Add the scene's datasets to a plotter."""
+    b = scene.blocks
     title = f"{scene.value_name} ({units})" if units else scene.value_name
     bar = dict(title=title, n_labels=5, fmt="%.3g", vertical=True, position_x=0.9, position_y=0.25, height=0.45,
                width=0.05, color="black", title_font_size=18, label_font_size=14)
@@ -365,9 +362,8 @@ def draw(plotter, scene: Scene, units: str = "", blocks: dict | None = None, pai
                          show_scalar_bar=False, name="volume_isosurfaces",
                          label="volume: " + "/".join(f"{v}" for v in scene.notes.get("volume_levels_shown_pct", []))
                          + "% of sill")
-    labels = scene.labels if blocks is None else blocks.get("_labels", scene.labels)
-    if labels:
-        plotter.add_point_labels([p for p, _, _ in labels], [t for _, t, _ in labels], font_size=16,
+    if scene.labels:
+        plotter.add_point_labels([p for p, _, _ in scene.labels], [t for _, t, _ in scene.labels], font_size=16,
                                  text_color="black", shape_color="white", shape_opacity=0.6, show_points=False,
                                  always_visible=True, name="labels")
 
@@ -376,21 +372,21 @@ def render(scene: Scene, path, view: str = "minor", size=(1600, 1200), units: st
            model=None):
     """Draw the scene from a view to a PNG (``minor``: down the minor axis; ``plan``; ``section``:
     across the major axis, horizontally), the data cut to a slab about the centre (see
-    ``view_blocks``); returns the image as an array."""
+    ``view_scene``); returns the image as an array."""
     import pyvista as pv
 
     prepare_offscreen()
-    blocks = view_blocks(scene, view, model=model)
+    shown = view_scene(scene, view, model=model)
     plotter = pv.Plotter(off_screen=True, window_size=list(size))
     plotter.set_background("white")
-    draw(plotter, scene, units, blocks)
+    draw(plotter, shown, units)
     bounds = plotter.bounds
     extent = float(max(bounds[1] - bounds[0], bounds[3] - bounds[2], bounds[5] - bounds[4]))
     _north_and_scale(plotter, bounds, extent)
     plotter.add_legend(bcolor="white", border=True, size=(0.24, 0.2), loc="lower right", face="rectangle")
     names = {"minor": "looking down the minor axis", "plan": "plan view, north up",
              "section": "vertical section along the major axis"}
-    plotter.add_text(f"{title}\n{names[view]}; holes and pairs within {blocks['_slab_m']:.0f} m of the centre "
+    plotter.add_text(f"{title}\n{names[view]}; holes and pairs within {shown.notes['slab_m']:.0f} m of the centre "
                      "across the view".strip(), position="upper_left", font_size=11, color="black")
     toward, up, _ = view_frame(scene, view)
     _camera(plotter, toward, up, bounds)
