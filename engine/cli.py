@@ -582,13 +582,13 @@ def _composites_arrays(frame, value, domain, path="the composites", with_rows=Fa
     except (ValueError, TypeError) as exc:
         raise TableError(f"{path}: columns x, y, z and {value!r} must hold numbers ({exc}).") from None
     keep = np.isfinite(xyz).all(axis=1)
-    hole = pd.factorize(frame["hole"])[0]
+    hole = pd.factorize(frame["hole"][keep])[0]  # codes of the rows kept: their names are factorize(rows)[1]
     if "from" in frame.columns and "to" in frame.columns:
         depth = 0.5 * (frame["from"].to_numpy(dtype=np.float64) + frame["to"].to_numpy(dtype=np.float64))
         length = np.nanmedian(frame["to"].to_numpy(dtype=np.float64) - frame["from"].to_numpy(dtype=np.float64))
     else:
         depth, length = np.zeros(len(frame)), None
-    arrays = xyz[keep], values[keep], hole[keep], depth[keep], length, int((~keep).sum())
+    arrays = xyz[keep], values[keep], hole, depth[keep], length, int((~keep).sum())
     return (*arrays, frame[keep]) if with_rows else arrays
 
 

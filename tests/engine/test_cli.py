@@ -281,3 +281,16 @@ def test_variogram_command(tmp_path, capsys):
     code, _, err = run(["variogram", "--composites", path, "--value", "au", "--directions", "north",
                         "--out", tmp_path / "y"], capsys)
     assert code == 2 and "trend/plunge" in err
+
+
+def test_hole_numbers_of_composites_match_their_names_when_a_hole_has_no_position():
+    import numpy as np
+    import pandas as pd
+
+    from engine.cli import _composites_arrays
+
+    frame = pd.DataFrame({"hole": ["A", "A", "B", "B", "C"], "x": [0.0, 0, np.nan, np.nan, 5],
+                          "y": [0.0, 0, 0, 0, 0], "z": [0.0, -1, 0, -1, 0], "au": [1.0, 2, 3, 4, 5]})
+    xyz, values, hole, *_, rows = _composites_arrays(frame, "au", None, with_rows=True)
+    names = pd.factorize(rows["hole"])[1]
+    assert list(names[hole]) == ["A", "A", "C"] and list(values) == [1.0, 2.0, 5.0]
