@@ -34,7 +34,7 @@ def make_program(n_holes: int, n_stations: int, n_queries: int, rng):
     at = np.tile(np.linspace(0.0, depth, n_stations), n_holes)
     az = (np.repeat(rng.uniform(0, 360, n_holes), n_stations) + rng.normal(0, 1.0, at.size).cumsum() * 0.1) % 360
     dip = np.clip(np.repeat(rng.uniform(-85, -50, n_holes), n_stations) + rng.normal(0, 0.5, at.size), -89.9, -1)
-    surveys = pd.DataFrame({"hole": np.repeat(hole_ids, n_stations), "at": at, "azimuth": az, "dip": dip})
+    surveys = pd.DataFrame({"hole": np.repeat(hole_ids, n_stations), "survey_depth": at, "azimuth": az, "dip": dip})
     q_hole = rng.integers(0, n_holes, n_queries)
     q_depth = rng.uniform(0, depth, n_queries)
     return collars, surveys, q_hole, q_depth
@@ -44,7 +44,7 @@ def python_loop(collars, surveys, q_hole, q_depth):
     """Per-hole Python: stations by the slow reference, positions by bisect and the arc formula."""
     stations = {}
     for hole, part in surveys.groupby("hole", sort=False):
-        stations[hole] = list(zip(part["at"], part["azimuth"], part["dip"]))
+        stations[hole] = list(zip(part["survey_depth"], part["azimuth"], part["dip"]))
     positions_by_hole = {}
     for row in collars.itertuples(index=False):
         st = sorted(stations[row.hole])

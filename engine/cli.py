@@ -8,12 +8,13 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import dataclasses
 import math
 import sys
 import time
 from pathlib import Path
 
-from .errors import DrillaxisError, UsageError
+from .errors import DrillaxisError, UsageError, shorten
 
 DESCRIPTION = (
     "drillaxis: validate and desurvey drillhole tables, composite them, and model the 3D variogram of "
@@ -42,6 +43,11 @@ class Console:
     def say(self, text: str = ""):
         if not self.quiet:
             print(text, flush=True)
+
+    def warn(self, text: str):
+        """A warning the user must not miss: on stderr, marked, whatever stdout is piped to."""
+        if not self.quiet:
+            print(f"WARNING: {text}", file=sys.stderr, flush=True)
 
     @contextlib.contextmanager
     def stages(self, names):
@@ -81,9 +87,55 @@ def _safe_streams():
 # --------------------------------------------------------------------------------------------
 
 
+def _number(low=None, high=None, *, above=False, integer=False):
+    """An argparse type: a finite number (an integer with ``integer``) from ``low`` to ``high``
+    (``above``: strictly above ``low``). A bad value exits 2 naming the option and its range."""
+    def parse(text):
+        try:
+            value = int(text) if integer else float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a number; give {_range_text(low, high, above, integer)}") \
+                from None
+        if not math.isfinite(value):
+            raise argparse.ArgumentTypeError(f"{text!r} is not a finite number; give "
+                                             f"{_range_text(low, high, above, integer)}")
+        if (low is not None and (value <= low if above else value < low)) or (high is not None and value > high):
+            raise argparse.ArgumentTypeError(f"{text!r} is out of range; give {_range_text(low, high, above, integer)}")
+        return value
+
+    return parse
+
+
+def _range_text(low, high, above, integer) -> str:
+    kind = "a whole number" if integer else "a number"
+    if low is not None and high is not None:
+        return f"{kind} above {low:g} and up to {high:g}" if above else f"{kind} from {low:g} to {high:g}"
+    if low is not None:
+        return f"{kind} above {low:g}" if above else f"{kind} of at least {low:g}"
+    if high is not None:
+        return f"{kind} up to {high:g}"
+    return f"a finite {kind.split()[-1]}"
+
+
+def _point(text):
+    """``X,Y,Z`` in metres, three finite numbers."""
+    try:
+        point = [float(v) for v in str(text).split(",")]
+    except ValueError:
+        point = []
+    if len(point) != 3 or not all(math.isfinite(v) for v in point):
+        raise argparse.ArgumentTypeError(f"{text!r}: write X,Y,Z, three numbers, for example 24500,61200,300")
+    return point
+
+
+SCENE_LAGS = 12  # lag bins of the scene's pair direction
+POSITIVE_M = _number(0.0, 1e6, above=True)
+THREADS = _number(1, 1024, integer=True)
+SEED = _number(0, 2**63 - 1, integer=True)
+
+
 class _Parser(argparse.ArgumentParser):
-    def error(self, message):  # exit 2 with one clear line, as argparse does, plus a hint
-        self.print_usage(sys.stderr)
+    def error(self, message):  # exit 2 with one clear line and a hint (the usage dump buries the message)
         self.exit(2, f"{self.prog}: error: {message}\n(see '{self.prog} --help')\n")
 
 
@@ -99,13 +151,13 @@ def _table_options(parser: argparse.ArgumentParser, required: bool = True):
     group.add_argument("--dip-convention", choices=("negative-down", "positive-down"),
                        default="negative-down", help="sign of dip for holes drilled downward "
                                                      "(default: negative-down)")
-    group.add_argument("--azimuth-offset", type=float, default=0.0, metavar="DEG",
+    group.add_argument("--azimuth-offset", type=_number(-360, 360), default=0.0, metavar="DEG",
                        help="degrees added to every azimuth (declination or grid convergence)")
     group.add_argument("--below-detection", choices=("half", "limit", "zero", "missing"), default="half",
                        help="what a value such as '<0.01' becomes (default: half the limit)")
     group.add_argument("--missing-marker", action="append", default=[], metavar="TEXT",
                        help="a further cell text meaning not sampled, such as NS; repeatable")
-    group.add_argument("--missing-code", action="append", default=[], type=float, metavar="NUMBER",
+    group.add_argument("--missing-code", action="append", default=[], type=_number(), metavar="NUMBER",
                        help="a number in value columns meaning not sampled, such as -99; repeatable")
     group.add_argument("--category", action="append", default=[], metavar="COLUMN",
                        help="treat an interval column as a text category even if it holds numbers")
@@ -136,19 +188,20 @@ def _composite_input(parser: argparse.ArgumentParser):
 def _fit_options(parser: argparse.ArgumentParser):
     """Options of the commands that fit a model."""
     group = parser.add_argument_group("fit")
-    group.add_argument("--lag", type=float, metavar="M", help="lag spacing (default: half the hole spacing, at "
+    group.add_argument("--lag", type=POSITIVE_M, metavar="M", help="lag spacing (default: half the hole spacing, at "
                        "least twice the composite length)")
-    group.add_argument("--lags", type=int, default=12, metavar="N", help="number of lags (default 12)")
+    group.add_argument("--lags", type=_number(3, 200, integer=True), default=12, metavar="N",
+                       help="number of lags (default 12)")
     group.add_argument("--structures", choices=("auto", "1", "2"), default="auto",
                        help="nested structures (default auto: one or two, by the Bayesian information criterion)")
     group.add_argument("--transform", choices=("none", "normal-score", "log"), default="none",
                        help="transform the values before fitting (default: none)")
-    group.add_argument("--bootstrap", type=int, default=50, metavar="N",
+    group.add_argument("--bootstrap", type=_number(0, 10000, integer=True), default=50, metavar="N",
                        help="hole-wise bootstrap replicates for the uncertainty (default 50; 0 leaves it out)")
-    group.add_argument("--bootstrap-block", type=float, metavar="M", help="resample blocks of holes whose tops "
+    group.add_argument("--bootstrap-block", type=_number(0, 1e6), metavar="M", help="resample blocks of holes whose tops "
                        "share an M metre square in plan (default: half the fitted major range; 0: single holes)")
-    group.add_argument("--seed", type=int, default=0, help="seed of the bootstrap (default 0)")
-    group.add_argument("--threads", type=int, metavar="N", help="worker threads (default: all cores)")
+    group.add_argument("--seed", type=SEED, default=0, help="seed of the bootstrap (default 0)")
+    group.add_argument("--threads", type=THREADS, metavar="N", help="worker threads (default: all cores)")
 
 
 def _scene_options(parser: argparse.ArgumentParser):
@@ -157,15 +210,18 @@ def _scene_options(parser: argparse.ArgumentParser):
                        help="draw the pairs of a lag bin along this model axis (default: major)")
     group.add_argument("--pairs-direction", metavar="TREND/PLUNGE", help="draw the pairs along this direction "
                        "instead of a model axis")
-    group.add_argument("--pairs-lag", type=int, metavar="K", help="lag bin 1..N of those pairs (default: the one "
+    group.add_argument("--pairs-lag", type=_number(1, SCENE_LAGS, integer=True), metavar="K", help="lag bin 1..N of those pairs (default: the one "
                        "nearest half the range along the axis)")
-    group.add_argument("--max-pairs", type=int, default=400, metavar="N", help="pairs drawn at most (default 400)")
-    group.add_argument("--fraction", type=float, default=1.0, metavar="F",
+    group.add_argument("--max-pairs", type=_number(1, 100000, integer=True), default=400, metavar="N",
+                       help="pairs drawn at most (default 400)")
+    group.add_argument("--fraction", type=_number(0, 10, above=True), default=1.0, metavar="F",
                        help="draw the ellipsoid at F x the ranges (default 1)")
     group.add_argument("--structures-apart", action="store_true", help="also one ellipsoid per nested structure")
-    group.add_argument("--centre", metavar="X,Y,Z", help="centre of the ellipsoid (default: the data centre)")
+    group.add_argument("--centre", type=_point, metavar="X,Y,Z", help="centre of the ellipsoid (default: the data "
+                       "centre)")
     group.add_argument("--collar-labels", action="store_true", help="label each hole at its top composite")
-    group.add_argument("--size", type=int, nargs=2, default=(1600, 1200), metavar=("W", "H"),
+    group.add_argument("--size", type=_number(200, 8000, integer=True), nargs=2, default=(1600, 1200),
+                       metavar=("W", "H"),
                        help="image size in pixels (default 1600 1200)")
 
 
@@ -194,7 +250,8 @@ def build_parser() -> argparse.ArgumentParser:
                                         "metres) and samples.csv (each interval's mid-point).")
     _table_options(p)
     _computing_options(p)
-    p.add_argument("--step", type=float, default=1.0, metavar="M", help="trace spacing in metres (default 1)")
+    p.add_argument("--step", type=_number(0, 1000, above=True), default=1.0, metavar="M",
+                   help="trace spacing in metres (default 1)")
     _common_options(p)
 
     p = commands.add_parser("composite", help="composite samples to a common length, keeping metal",
@@ -203,22 +260,23 @@ def build_parser() -> argparse.ArgumentParser:
                                         "and value), composite_summary.json and rejected.csv.")
     _table_options(p)
     shape = p.add_argument_group("composites")
-    shape.add_argument("--length", type=float, metavar="L", help="composite length in metres")
+    shape.add_argument("--length", type=_number(0, 10000, above=True), metavar="L", help="composite length in metres")
     shape.add_argument("--domain", metavar="COLUMN", help="category column whose changes break composites")
     shape.add_argument("--residual", choices=("merge", "drop", "keep"), default="merge",
                        help="rule for the short piece at the end of a run (default: merge)")
-    shape.add_argument("--merge-below", type=float, default=0.5, metavar="F",
+    shape.add_argument("--merge-below", type=_number(0, 1, above=True), default=0.5, metavar="F",
                        help="merge joins a residual shorter than F x L to the previous composite (default 0.5)")
     shape.add_argument("--equal", action="store_true",
                        help="split each run into round(run / L) composites of equal length")
-    shape.add_argument("--min-coverage", type=float, default=0.5, metavar="F",
+    shape.add_argument("--min-coverage", type=_number(0, 1), default=0.5, metavar="F",
                        help="leave out composites whose sampled length is below F x length (default 0.5)")
     shape.add_argument("--density", metavar="COLUMN", help="weight by length x density from this column")
-    shape.add_argument("--density-default", type=float, metavar="VALUE",
+    shape.add_argument("--density-default", type=_number(0, 100, above=True), metavar="VALUE",
                        help="density to use where the density column is missing")
     shape.add_argument("--whole-run", action="store_true", help="one composite per run (domain intersection)")
-    shape.add_argument("--bench", type=float, metavar="H", help="composite by slices of elevation H metres high")
-    shape.add_argument("--bench-base", type=float, default=0.0, metavar="Z",
+    shape.add_argument("--bench", type=_number(0, 10000, above=True), metavar="H",
+                       help="composite by slices of elevation H metres high")
+    shape.add_argument("--bench-base", type=_number(), default=0.0, metavar="Z",
                        help="an elevation on a bench boundary (default 0)")
     shape.add_argument("--cap", action="append", default=[], metavar="COLUMN=VALUE",
                        help="cap a value column before compositing; repeatable")
@@ -231,37 +289,40 @@ def build_parser() -> argparse.ArgumentParser:
                                         "over the pairs. Writes variograms.csv and volume.npz.")
     _composite_input(p)
     lags = p.add_argument_group("lags")
-    lags.add_argument("--lag", type=float, metavar="M", help="lag spacing in metres (default: from the data)")
-    lags.add_argument("--lags", type=int, default=10, metavar="N", help="number of lags (default 10)")
-    lags.add_argument("--lag-tolerance", type=float, metavar="M", help="lag tolerance (default: half the lag)")
+    lags.add_argument("--lag", type=POSITIVE_M, metavar="M", help="lag spacing in metres (default: from the data)")
+    lags.add_argument("--lags", type=_number(1, 1000, integer=True), default=10, metavar="N",
+                      help="number of lags (default 10)")
+    lags.add_argument("--lag-tolerance", type=_number(0, 1e6), metavar="M",
+                      help="lag tolerance (default: half the lag)")
     sets = p.add_argument_group("sets (none named: omnidirectional, down-hole and the volume)")
     sets.add_argument("--omni", action="store_true", help="the omnidirectional variogram")
     sets.add_argument("--directions", metavar="T/P,...", help="directions as trend/plunge, comma separated")
     sets.add_argument("--fan", action="append", default=[], metavar="DIPDIR/DIP/N",
                       help="N directions evenly spaced in a plane of that dip direction and dip (0/0/18: a "
                            "horizontal fan every 10 degrees); repeatable")
-    sets.add_argument("--angle-tolerance", type=float, default=22.5, metavar="DEG",
+    sets.add_argument("--angle-tolerance", type=_number(0, 90, above=True), default=22.5, metavar="DEG",
                       help="half-angle of the directional cone (default 22.5)")
-    sets.add_argument("--bandwidth", type=float, default=math.inf, metavar="M",
+    sets.add_argument("--bandwidth", type=POSITIVE_M, default=math.inf, metavar="M",
                       help="largest distance across the direction's vertical plane (default: none)")
-    sets.add_argument("--vertical-bandwidth", type=float, default=math.inf, metavar="M",
+    sets.add_argument("--vertical-bandwidth", type=POSITIVE_M, default=math.inf, metavar="M",
                       help="largest distance within that plane, perpendicular to the direction (default: none)")
     sets.add_argument("--downhole", action="store_true", help="pairs within a hole by along-hole separation")
-    sets.add_argument("--downhole-lag", type=float, metavar="M", help="down-hole lag (default: the median "
+    sets.add_argument("--downhole-lag", type=POSITIVE_M, metavar="M", help="down-hole lag (default: the median "
                       "composite length)")
     sets.add_argument("--volume", action="store_true", help="the variogram volume (a grid of lag vectors)")
-    sets.add_argument("--volume-cells", type=int, nargs=3, default=(20, 20, 10), metavar=("NX", "NY", "NZ"),
+    sets.add_argument("--volume-cells", type=_number(1, 60, integer=True), nargs=3, default=(20, 20, 10),
+                      metavar=("NX", "NY", "NZ"),
                       help="cells each side of zero along east, north, up (default 20 20 10)")
     p.add_argument("--measure", default="semivariogram",
                    choices=("semivariogram", "standardized", "covariance", "correlogram", "pairwise-relative",
                             "general-relative", "madogram"), help="what to compute (default: semivariogram)")
     p.add_argument("--transform", choices=("none", "normal-score", "log"), default="none",
                    help="transform the values before the pass (default: none)")
-    p.add_argument("--indicator", type=float, metavar="THRESHOLD",
+    p.add_argument("--indicator", type=_number(), metavar="THRESHOLD",
                    help="variogram of the indicator value <= THRESHOLD instead of the value")
     p.add_argument("--pairs", choices=("all", "across-holes", "same-hole"), default="all",
                    help="which pairs to use (default: all)")
-    p.add_argument("--threads", type=int, metavar="N", help="worker threads (default: all cores)")
+    p.add_argument("--threads", type=THREADS, metavar="N", help="worker threads (default: all cores)")
     p.add_argument("--dask", metavar="ADDRESS", help="run the pair work on a Dask cluster: tcp://host:port, or "
                    "local:N for N local worker processes")
     _common_options(p)
@@ -274,7 +335,7 @@ def build_parser() -> argparse.ArgumentParser:
     _composite_input(p)
     _detrend_option(p)
     p.add_argument("--model", metavar="FILE", help="a model.json whose axes get swaths too")
-    p.add_argument("--threads", type=int, metavar="N", help="worker threads (default: all cores)")
+    p.add_argument("--threads", type=THREADS, metavar="N", help="worker threads (default: all cores)")
     _common_options(p)
 
     p = commands.add_parser("fit", help="principal directions and the fitted variogram model",
@@ -313,7 +374,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--value", required=True, metavar="COLUMN", help="the value column to fit")
     p.add_argument("--domain", metavar="COLUMN=VALUE", help="composite by domain column COLUMN and fit VALUE's "
                    "composites only")
-    p.add_argument("--length", type=float, default=2.0, metavar="M", help="composite length (default 2)")
+    p.add_argument("--length", type=_number(0, 10000, above=True), default=2.0, metavar="M",
+                   help="composite length (default 2)")
     p.add_argument("--units", default="", metavar="TEXT", help="units of the value, for the scene's colour bar")
     _fit_options(p)
     _detrend_option(p)
@@ -323,7 +385,7 @@ def build_parser() -> argparse.ArgumentParser:
     p = commands.add_parser("demo", help="run the workflow on a built-in synthetic drill program",
                             description="Generate the invented Tarn Hill drill program with a known "
                                         "anisotropy, run the workflow on it and compare with the truth.")
-    p.add_argument("--seed", type=int, default=2026, help="random seed of the program (default 2026)")
+    p.add_argument("--seed", type=SEED, default=2026, help="random seed of the program (default 2026)")
     _common_options(p, out_default="drillaxis-demo")
     return parser
 
@@ -333,15 +395,16 @@ def build_parser() -> argparse.ArgumentParser:
 # --------------------------------------------------------------------------------------------
 
 
-def _read(args):
+def _read(args, notes: list | None = None):
+    """Read and validate the tables. ``notes``: sentences for the console (a renamed option)."""
     from .tables import parse_column_options, read_tables
 
     categories = list(args.category)
     if getattr(args, "domain", None):
-        categories.append(args.domain)
+        categories += _domain_candidates(args.domain)
     return read_tables(
         args.collars, args.surveys, args.intervals,
-        columns=parse_column_options(args.column),
+        columns=parse_column_options(args.column, notes),
         dip_convention=args.dip_convention,
         below_detection=args.below_detection,
         missing_markers=args.missing_marker,
@@ -350,15 +413,27 @@ def _read(args):
     )
 
 
-def _out_dir(path) -> Path:
-    out = Path(path)
-    try:
-        out.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise UsageError(f"--out {str(path)!r}: cannot create the folder ({exc.strerror}).") from None
-    if not out.is_dir():
-        raise UsageError(f"--out {str(path)!r} is not a folder.")
-    return out
+#: What each command writes into --out (names and glob patterns), removed at its start so that a
+#: folder never holds one run's files beside another's.
+TABLE_OUTPUTS = ("findings.csv", "rejected.csv")
+DESURVEY_OUTPUTS = ("traces.csv", "samples.csv")
+COMPOSITE_OUTPUTS = ("composites.csv", "composite_check.csv", "composite_summary.json")
+STATIONARITY_OUTPUTS = ("stationarity.json", "stationarity_*.png", "trend.csv")
+VARIOGRAM_OUTPUTS = ("variograms.csv", "volume.npz")
+FIT_OUTPUTS = ("model.json", "pattern.json", "fit_variograms.csv", *VARIOGRAM_OUTPUTS)
+SCENE_OUTPUTS = ("scene.png", "scene_plan.png", "scene_section.png", "scene.html", "scene.vtm", "scene")
+RUN_OUTPUTS = (*TABLE_OUTPUTS, *COMPOSITE_OUTPUTS, *STATIONARITY_OUTPUTS, *FIT_OUTPUTS, *SCENE_OUTPUTS, "report.html")
+OUTPUTS = {"check": TABLE_OUTPUTS, "desurvey": (*TABLE_OUTPUTS, *DESURVEY_OUTPUTS),
+           "composite": (*TABLE_OUTPUTS, *COMPOSITE_OUTPUTS), "variogram": VARIOGRAM_OUTPUTS,
+           "stationarity": STATIONARITY_OUTPUTS, "fit": FIT_OUTPUTS, "view": SCENE_OUTPUTS, "run": RUN_OUTPUTS,
+           "demo": (*RUN_OUTPUTS, *DESURVEY_OUTPUTS, "data")}
+
+
+def _out_dir(args):
+    """The command's output folder (created, checked writable); its old outputs go at ``clear()``."""
+    from .outputs import OutputFolder
+
+    return OutputFolder(args.out, args.command, OUTPUTS[args.command])
 
 
 def _write_findings(tables, rejected, out: Path) -> None:
@@ -368,18 +443,78 @@ def _write_findings(tables, rejected, out: Path) -> None:
     write_csv(rejected, out / "rejected.csv")
 
 
-def _checked_tables(args, out: Path):
-    """Read, validate and write findings.csv and rejected.csv (the rows that --skip-bad-rows leaves
-    out); return the usable tables, or raise ValidationError when errors remain and rows may not be
-    skipped."""
-    tables = _read(args)
-    _write_findings(tables, _rows_would_reject(tables), out)
-    return tables.usable(skip_bad_rows=getattr(args, "skip_bad_rows", False))
+def _checked_tables(args, folder, console: Console, need_intervals: bool = True, check=None):
+    """Read and validate; ``check(tables)`` may refuse the options against the tables before anything
+    is written; then the folder is cleared and findings.csv and rejected.csv (the rows that
+    --skip-bad-rows leaves out) are written. Returns the usable tables and the rejected rows, or
+    raises ValidationError when errors remain and rows may not be skipped, or when no row is left."""
+    notes = []
+    tables = _read(args, notes)
+    for note in notes:
+        console.warn(note)
+    if check is not None:
+        check(tables)
+    folder.clear()
+    _write_findings(tables, _rows_would_reject(tables), folder.path)
+    for notice in tables.notices:
+        console.warn(notice)
+    usable, rejected = tables.usable(skip_bad_rows=getattr(args, "skip_bad_rows", False))
+    from .errors import ValidationError
+
+    if len(usable.collars) == 0:
+        raise ValidationError(f"no collar row is left to work with: all {len(tables.collars)} were rejected "
+                              f"(reasons in {folder.path / 'rejected.csv'}).")
+    if need_intervals and len(usable.intervals) == 0:
+        raise ValidationError(f"no interval row is left to work with: all {len(tables.intervals)} were rejected "
+                              f"(reasons in {folder.path / 'rejected.csv'}).")
+    return usable, rejected
 
 
 def _rows_would_reject(tables):
     _, rejected = tables.usable(skip_bad_rows=True)
     return rejected
+
+
+def _domain_candidates(text) -> list[str]:
+    """Every column name that ``COLUMN=VALUE`` could mean (a column's own name may hold '=')."""
+    text = str(text)
+    return [text[:i].strip() for i, ch in enumerate(text) if ch == "="] or [text.strip()]
+
+
+def _domain_column(text, columns, option="--domain"):
+    """The column and value of ``COLUMN=VALUE``; COLUMN is the name as the input spells it (case,
+    spaces and separators aside). Bad usage when it names no column."""
+    from .errors import list_some
+    from .tables import find_column
+
+    text = str(text)
+    if "=" not in text:
+        raise UsageError(f"{option} {text!r}: write COLUMN=VALUE, for example {option} domain=FRESH.")
+    for i, ch in enumerate(text):
+        if ch == "=":
+            found = find_column(columns, text[:i].strip())
+            if found is not None:
+                return found, text[i + 1:].strip()
+    raise UsageError(f"{option} {text!r}: no column {text.split('=', 1)[0].strip()!r}. Columns: "
+                     f"{list_some(columns, 40)}.")
+
+
+def _value_column(name, columns, where="the composites", option="--value"):
+    """The value column as its table spells it; bad usage (exit 2) listing the columns when absent."""
+    from .errors import list_some
+    from .tables import find_column
+
+    found = find_column(columns, name)
+    if found is None:
+        raise UsageError(f"{option} {name!r}: no such column in {where}. Columns: {list_some(columns, 40)}.")
+    return found
+
+
+def _some_names(names, limit: int = 30) -> str:
+    names = [shorten(n) for n in names]
+    if not names:
+        return "(none)"
+    return ", ".join(names[:limit]) + (f" and {len(names) - limit} more" if len(names) > limit else "")
 
 
 def _findings_summary(tables, console: Console, out: Path, limit: int = 10):
@@ -388,8 +523,8 @@ def _findings_summary(tables, console: Console, out: Path, limit: int = 10):
         f"tables: {counts['collars']} collar rows, {counts['surveys']} survey rows, "
         f"{counts['intervals']} interval rows"
     )
-    console.say(f"  value columns: {', '.join(tables.value_columns) or '(none)'}")
-    console.say(f"  category columns: {', '.join(tables.category_columns) or '(none)'}")
+    console.say(f"  value columns: {_some_names(tables.value_columns)}")
+    console.say(f"  category columns: {_some_names(tables.category_columns)}")
     findings = tables.findings
     console.say(f"findings: {tables.error_count} error(s), {tables.warning_count} warning(s) "
                 f"-> {out / 'findings.csv'}")
@@ -400,7 +535,8 @@ def _findings_summary(tables, console: Console, out: Path, limit: int = 10):
         shown = findings.sort_values("severity", kind="stable").head(limit)
         for row in shown.itertuples(index=False):
             line = "" if row.line is None or str(row.line) == "<NA>" else f" line {row.line}"
-            console.say(f"  {row.severity}: {row.table}{line} hole {row.hole!r} {row.column}: {row.problem}")
+            hole = f" hole {shorten(row.hole)!r}" if row.hole else ""
+            console.say(f"  {row.severity}: {row.table}{line}{hole} {shorten(row.column)}: {row.problem}")
         if len(findings) > limit:
             console.say(f"  ... and {len(findings) - limit} more in findings.csv")
 
@@ -411,14 +547,22 @@ def _findings_summary(tables, console: Console, out: Path, limit: int = 10):
 
 
 def cmd_check(args, console: Console) -> int:
-    out = _out_dir(args.out)
+    folder = _out_dir(args)
+    out = folder.path
     with console.stages(["reading and validating", "writing findings"]) as step:
         step("reading and validating")
-        tables = _read(args)
+        notes = []
+        tables = _read(args, notes)
         step("writing findings")
+        folder.clear()
         rejected = _rows_would_reject(tables)
         _write_findings(tables, rejected, out)
+    for note in notes:
+        console.warn(note)
     _findings_summary(tables, console, out)
+    for notice in tables.notices:
+        console.warn(notice)
+    folder.finish()
     if tables.error_count:
         console.say(f"{len(rejected)} row(s) would be left out with --skip-bad-rows -> {out / 'rejected.csv'}")
         return 1
@@ -451,19 +595,21 @@ def _desurvey_summary(trace, traces, samples, method, out, console):
 
 
 def cmd_desurvey(args, console: Console) -> int:
-    out = _out_dir(args.out)
+    folder = _out_dir(args)
+    out = folder.path
     with console.stages(["reading and validating", "desurveying", "writing traces and samples"]) as step:
         step("reading and validating")
-        tables = _read(args)
-        tables, rejected = _checked_tables(args, out)
+        tables, rejected = _checked_tables(args, folder, console, need_intervals=False)
         trace, traces, samples = _desurvey(tables, args, out, console, step)
     if len(rejected):
         console.say(f"{len(rejected)} row(s) left out -> {out / 'rejected.csv'}")
     _desurvey_summary(trace, traces, samples, args.method, out, console)
+    folder.finish()
     return 0
 
 
-def _composite_options(args):
+def _composite_options(args, domain=None):
+    """The compositing options; ``domain``: the domain column as the tables spell it."""
     from .composite import CompositeOptions
 
     modes = [name for name, on in (("--length", args.length is not None and not (args.whole_run or args.bench)),
@@ -474,28 +620,50 @@ def _composite_options(args):
         raise UsageError("give --length L (fixed-length composites), --whole-run or --bench H.")
     caps = {}
     for item in args.cap:
-        column, _, value = item.partition("=")
+        column, _, value = item.rpartition("=")  # a column's name may hold '='; a number never does
         try:
-            caps[column.strip()] = float(value)
+            cap = float(value)
         except ValueError:
-            raise UsageError(f"--cap {item!r}: write COLUMN=VALUE, for example --cap au_gpt=30.") from None
+            cap = math.nan
+        if not column.strip() or not math.isfinite(cap):
+            raise UsageError(f"--cap {item!r}: write COLUMN=VALUE with a finite number, for example --cap au_gpt=30.")
+        caps[column.strip()] = cap
     mode = "whole-run" if args.whole_run else "bench" if args.bench is not None else "length"
     return CompositeOptions(
-        length_m=args.length, domain=args.domain, residual=args.residual, merge_below=args.merge_below,
+        length_m=args.length, domain=domain, residual=args.residual, merge_below=args.merge_below,
         equal=args.equal, min_coverage=args.min_coverage, density=args.density,
         density_default=args.density_default, mode=mode, bench_height_m=args.bench,
         bench_base_m=args.bench_base, caps=caps,
     )
 
 
-def _composite(tables, rejected, args, out: Path, step, trace=None):
+def _resolve_composite_columns(options, tables):
+    """Options naming columns as the tables spell them (case and separators aside), or bad usage."""
+    from .errors import list_some
+    from .tables import find_column
+
+    def column(name, among, option, kind):
+        found = find_column(among, name)
+        if found is None:
+            raise UsageError(f"{option} {name!r}: no such {kind} column. {kind.capitalize()} columns: "
+                             f"{list_some(among, 40)}.")
+        return found
+
+    if options.domain is not None:
+        options.domain = column(options.domain, tables.category_columns, "--domain", "category")
+    if options.density is not None:
+        options.density = column(options.density, tables.value_columns, "--density", "value")
+    options.caps = {column(c, tables.value_columns, "--cap", "value"): v for c, v in options.caps.items()}
+    return options
+
+
+def _composite(tables, rejected, options, args, out: Path, step, trace=None):
     import pandas as pd
 
     from .composite import composite
     from .desurvey import Desurvey
     from .outputs import write_csv, write_json
 
-    options = _composite_options(args)
     if trace is None:
         step("desurveying")
         trace = Desurvey(args.method, args.dip_convention, args.azimuth_offset).fit(tables.collars, tables.surveys)
@@ -527,69 +695,126 @@ def _composite_summary(result, out: Path, console: Console):
                     f"metal removed {cap['metal_removed']:.6g} ({100 * share:.2f}%)")
     for warning in result.warnings:
         console.say(f"  warning: {warning}")
-    console.say(f"  metal check: largest difference {s['largest_metal_difference']:.3g} "
-                f"-> {out / 'composite_check.csv'}")
+    console.say(f"  metal check: largest difference {s['largest_metal_difference']:.3g} (relative "
+                f"{s['largest_relative_metal_difference']:.2g}) -> {out / 'composite_check.csv'}")
 
 
 def cmd_composite(args, console: Console) -> int:
-    out = _out_dir(args.out)
+    folder = _out_dir(args)
+    out = folder.path
     _composite_options(args)  # usage errors before any reading
+    options = None
+
+    def check(tables):
+        nonlocal options
+        options = _resolve_composite_columns(_composite_options(args, args.domain), tables)
+
     names = ["reading and validating", "desurveying", "compositing", "writing composites"]
     with console.stages(names) as step:
         step(names[0])
-        tables, rejected = _checked_tables(args, out)
-        result = _composite(tables, rejected, args, out, step)
+        tables, rejected = _checked_tables(args, folder, console, check=check)
+        result = _composite(tables, rejected, options, args, out, step)
     if len(rejected):
         console.say(f"{len(rejected)} input row(s) left out -> {out / 'rejected.csv'}")
     _composite_summary(result, out, console)
+    folder.finish()
     return 0
 
 
-def _read_composites(path, value, domain, with_rows=False):
+def _read_composites(path, value, domain, varying=True) -> "Composites":
     from .tables import read_raw_table
 
     raw = read_raw_table(path, "composites", frozenset({"hole"}))
-    if domain:
-        column, _, wanted = domain.partition("=")
-        domain = (column, wanted)
-    arrays = _composites_arrays(raw.frame, value, domain, path, with_rows)
-    return (*arrays, raw.frame) if with_rows else arrays
+    return _composites_arrays(raw.frame, value, domain, path, varying)
 
 
-def _composites_arrays(frame, value, domain, path="the composites", with_rows=False):
-    """Positions, values, hole numbers, mid-depths, the median length and the count left out for
-    want of a position; ``domain`` is None or (column, wanted value). With ``with_rows`` also the
-    frame of the composites used (same order)."""
+def _domain_rows(frame, column, wanted, path):
+    """The rows whose ``column`` reads ``wanted``; bad usage listing the values present when none do."""
+    import pandas as pd
+
+    from .errors import list_some
+
+    text = frame[column].astype(str).where(frame[column].notna(), "")
+    rows = frame[(text == wanted).to_numpy()]
+    if rows.empty:
+        present = pd.unique(text[text != ""])
+        near = [v for v in present if v.lower() == wanted.lower()]
+        hint = f" (did you mean {near[0]!r}? values are compared exactly)" if near else ""
+        raise UsageError(f"--domain {column}={shorten(wanted)}: no row of {path} has {column} = "
+                         f"{shorten(wanted)!r}{hint}. Values present: {list_some(sorted(present), 30)}.")
+    return rows
+
+
+@dataclasses.dataclass
+class Composites:
+    """The composites of one value (and domain) as arrays for the engine: positions, values, hole
+    numbers (their names are ``hole_names``), mid-depths, the median length, how many were left out
+    for want of a position; ``rows`` the table rows used (same order) and ``whole`` the table read.
+    ``value`` and ``domain_column`` are spelt as the table spells them."""
+
+    xyz: object
+    values: object
+    hole: object
+    depth: object
+    length: float | None
+    unplaced: int
+    rows: object
+    whole: object
+    value: str
+    domain_column: str | None = None
+    domain_value: str | None = None
+
+    @property
+    def domain_text(self):
+        return f"{self.domain_column}={self.domain_value}" if self.domain_column else None
+
+    @property
+    def hole_names(self):
+        import pandas as pd
+
+        return pd.factorize(self.rows["hole"])[1]
+
+
+def _composites_arrays(frame, value, domain, path="the composites", varying=True) -> Composites:
+    """The composites of ``value`` (a column) in ``domain`` (None or ``COLUMN=VALUE``, COLUMN as the
+    input tables spell it); ``varying``: refuse values that do not vary."""
     import numpy as np
     import pandas as pd
 
-    from .errors import TableError
+    from .errors import TableError, list_some
+    from .variogram import require_variation
 
-    missing = [c for c in ("hole", "x", "y", "z", value) if c not in frame.columns]
+    whole = frame
+    missing = [c for c in ("hole", "x", "y", "z") if c not in frame.columns]
     if missing:
-        raise TableError(f"{path}: no column {', '.join(map(repr, missing))}. Columns found: "
-                         f"{', '.join(map(repr, frame.columns))}.")
+        raise TableError(f"{path}: no column {', '.join(map(repr, missing))}: not a composites table. Columns "
+                         f"found: {list_some(frame.columns, 40)}.")
+    value = _value_column(value, list(frame.columns), path)
+    column = wanted = None
+    where = ""
     if domain:
-        column, wanted = domain
-        if column not in frame.columns:
-            raise UsageError(f"--domain {column}={wanted}: no column {column!r} in {path}.")
-        frame = frame[frame[column].astype(str) == wanted]
-        if frame.empty:
-            raise TableError(f"{path}: no composite has {column} = {wanted!r}.")
+        column, wanted = _domain_column(domain, list(frame.columns))
+        frame = _domain_rows(frame, column, wanted, path)
+        where = f" in {column} = {shorten(wanted)}"
     try:
         xyz = frame[["x", "y", "z"]].to_numpy(dtype=np.float64)
         values = pd.to_numeric(frame[value], errors="raise").to_numpy(dtype=np.float64)
+        ends = frame[["from", "to"]].to_numpy(dtype=np.float64) if {"from", "to"} <= set(frame.columns) else None
     except (ValueError, TypeError) as exc:
-        raise TableError(f"{path}: columns x, y, z and {value!r} must hold numbers ({exc}).") from None
+        raise TableError(f"{path}: columns x, y, z, from, to and {value!r} must hold numbers ({exc}).") from None
     keep = np.isfinite(xyz).all(axis=1)
+    if not keep.any():
+        raise TableError(f"{path}: no composite{where} has a position (x, y, z).")
+    if varying:
+        require_variation(values[keep], f"{value!r}{where}")
     hole = pd.factorize(frame["hole"][keep])[0]  # codes of the rows kept: their names are factorize(rows)[1]
-    if "from" in frame.columns and "to" in frame.columns:
-        depth = 0.5 * (frame["from"].to_numpy(dtype=np.float64) + frame["to"].to_numpy(dtype=np.float64))
-        length = np.nanmedian(frame["to"].to_numpy(dtype=np.float64) - frame["from"].to_numpy(dtype=np.float64))
+    if ends is not None:
+        depth = 0.5 * (ends[:, 0] + ends[:, 1])
+        length = float(np.nanmedian(ends[:, 1] - ends[:, 0])) if np.isfinite(ends).any() else None
     else:
         depth, length = np.zeros(len(frame)), None
-    arrays = xyz[keep], values[keep], hole, depth[keep], length, int((~keep).sum())
-    return (*arrays, frame[keep]) if with_rows else arrays
+    return Composites(xyz[keep], values[keep], hole, depth[keep], length, int((~keep).sum()), frame[keep], whole,
+                      value, column, wanted)
 
 
 def cmd_variogram(args, console: Console) -> int:
@@ -599,13 +824,15 @@ def cmd_variogram(args, console: Console) -> int:
     from .variogram import (Direction, LagBins, Sets, VolumeGrid, accumulate, fan, indicator, normal_scores,
                             variogram_table)
 
-    out = _out_dir(args.out)
+    folder = _out_dir(args)
+    out = folder.path
     names = ["reading composites", "building the pair index", "counting pairs", "writing variograms"]
     with console.stages(names) as step:
         step(names[0])
-        xyz, values, hole, depth, length, unplaced = _read_composites(args.composites, args.value, args.domain)
-        if len(values) < 2:
-            raise UsageError(f"{args.composites}: fewer than two composites to pair.")
+        data = _read_composites(args.composites, args.value, args.domain)
+        xyz, values, hole, depth, length, unplaced = (data.xyz, data.values, data.hole, data.depth, data.length,
+                                                      data.unplaced)
+        args.value = data.value
         if args.transform == "log":
             if (values[np.isfinite(values)] <= 0).any():
                 raise UsageError("--transform log needs values above zero.")
@@ -622,19 +849,18 @@ def cmd_variogram(args, console: Console) -> int:
         directions = []
         if args.directions:
             for item in args.directions.split(","):
-                try:
-                    trend, plunge = (float(v) for v in item.split("/"))
-                except ValueError:
-                    raise UsageError(f"--directions {item!r}: write trend/plunge, for example 45/10.") from None
+                trend, plunge = _trend_plunge(item, "--directions")
                 directions.append(Direction(trend, plunge, args.angle_tolerance, args.bandwidth,
                                             args.vertical_bandwidth))
         for item in args.fan:
+            parts = item.split("/")
             try:
-                dip_direction, dip, count = item.split("/")
-                directions += fan(float(dip_direction), float(dip), int(count), None, args.bandwidth,
-                                  args.vertical_bandwidth)
-            except ValueError:
-                raise UsageError(f"--fan {item!r}: write DIPDIR/DIP/N, for example 0/0/18.") from None
+                dip_direction, dip, count = float(parts[0]), float(parts[1]), int(parts[2])
+                assert len(parts) == 3 and 0 <= dip_direction <= 360 and 0 <= dip <= 90 and 1 <= count <= 180
+            except (ValueError, IndexError, AssertionError):
+                raise UsageError(f"--fan {item!r}: write DIPDIR/DIP/N with a dip direction from 0 to 360, a dip "
+                                 "from 0 to 90 and 1 to 180 directions, for example 0/0/18.") from None
+            directions += fan(dip_direction, dip, count, None, args.bandwidth, args.vertical_bandwidth)
         chosen = args.omni or directions or args.downhole or args.volume
         dh_lag = args.downhole_lag or (length if length and length > 0 else lag)
         downhole = LagBins(dh_lag, args.lags) if (args.downhole or not chosen) else None
@@ -647,6 +873,7 @@ def cmd_variogram(args, console: Console) -> int:
         sets = Sets(omni=bins if (args.omni or not chosen) else None, directions=directions,
                     directional_bins=bins if directions else None, downhole=downhole, volume=volume,
                     pairs=args.pairs, max_distance_m=line_reach if volume is not None else None)
+        folder.clear()
         step(names[1])
         index = PairIndex(xyz, hole, depth, max_distance_m=sets.plan().max_distance_m)
         step(names[2])
@@ -665,7 +892,20 @@ def cmd_variogram(args, console: Console) -> int:
     if volume is not None:
         console.say(f"  volume: {2 * volume.half_counts[0] + 1} x {2 * volume.half_counts[1] + 1} x "
                     f"{2 * volume.half_counts[2] + 1} cells -> {out / 'volume.npz'}")
+    folder.finish()
     return 0
+
+
+def _trend_plunge(text, option):
+    """``TREND/PLUNGE`` in degrees (trend 0 to 360, plunge -90 to 90), or bad usage."""
+    try:
+        trend, plunge = (float(v) for v in str(text).split("/"))
+        if not (0 <= trend <= 360 and -90 <= plunge <= 90):
+            raise ValueError
+    except ValueError:
+        raise UsageError(f"{option} {text!r}: write TREND/PLUNGE in degrees, trend 0 to 360 and plunge -90 to 90, "
+                         "for example 45/10.") from None
+    return trend, plunge
 
 
 def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, domain_text=None, lead=None,
@@ -701,7 +941,9 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, doma
     pattern["model_axes"] = checks["axes"]
     pattern["warnings"] = checks["warnings"]
     fitted = model_json(result, args.value, domain_text)
-    data = {"schema": fitted.pop("schema"), "warnings": list(lead or []), **fitted}
+    warnings = (list(lead or []) + [f"Drill pattern: {w}" for w in checks["warnings"]]
+                + [f"Fit: {p}" for p in fitted["fit"]["problems"]])  # every warning the console prints
+    data = {"schema": fitted.pop("schema"), "warnings": warnings, **fitted}
     data["transform"] = args.transform
     if detrend:
         data["detrend"] = {k: detrend[k] for k in ("kind", "terms", "coefficients", "centre", "unit_m", "r_squared")}
@@ -755,7 +997,9 @@ def _write_variograms(line_acc, volume_acc, out: Path, measure: str = "semivario
                                 half_counts=np.asarray(volume.half_counts), measure=measure)
 
 
-def _model_summary(data: dict, out: Path, console: Console):
+def _model_summary(data: dict, out: Path, console: Console, printed=("Stationarity: ", "Tables: ")):
+    """The model on the console; its warnings too, but those whose source (``printed``) the console
+    showed already."""
     o = data["orientation"]
     if data.get("detrend"):
         console.say(f"model of the residuals from a {data['detrend']['kind']} trend (r squared "
@@ -776,10 +1020,9 @@ def _model_summary(data: dict, out: Path, console: Console):
         a = b["axis_angle_deg"]
         console.say(f"  bootstrap ({b['replicates'] - b['failed']} replicates): 95% of the replicate axes within "
                     f"{a['major']['p95']:.1f} / {a['semi_major']['p95']:.1f} / {a['minor']['p95']:.1f} degrees")
-    for text in data["pattern"]["warnings"]:
-        console.say(f"  WARNING: {text}")
-    for text in data["fit"]["problems"]:
-        console.say(f"  PROBLEM: {text}")
+    for text in data["warnings"]:
+        if not text.startswith(printed):
+            console.say(f"  WARNING: {text}")
 
 
 def _stationarity(xyz, values, hole, args, out: Path, rows, domain_text=None, labels=None, model_axes=None):
@@ -870,25 +1113,28 @@ def _read_model(path):
 
 def cmd_stationarity(args, console: Console) -> int:
     import numpy as np
+    import pandas as pd
 
     from .provenance import provenance
 
-    out = _out_dir(args.out)
-    xyz, values, hole, depth, length, unplaced, rows, whole = _read_composites(args.composites, args.value,
-                                                                               args.domain, with_rows=True)
+    folder = _out_dir(args)
+    out = folder.path
+    data = _read_composites(args.composites, args.value, args.domain)
+    args.value = data.value
     labels = None
-    if args.domain:
-        column = args.domain.partition("=")[0]
-        import pandas as pd
-
-        labels = (pd.to_numeric(whole[args.value], errors="coerce").to_numpy(dtype=np.float64), whole[column])
-    args.provenance = provenance({"composites": args.composites}, _options_of(args), {"composites": len(whole)})
+    if data.domain_column:
+        labels = (pd.to_numeric(data.whole[data.value], errors="coerce").to_numpy(dtype=np.float64),
+                  data.whole[data.domain_column])
+    args.provenance = provenance({"composites": args.composites}, _options_of(args), {"composites": len(data.whole)})
     axes = _read_model(args.model)[1].axes if args.model else None
-    data, _ = _stationarity(xyz, values, hole, args, out, rows, args.domain, labels, model_axes=axes)
-    _stationarity_figures(data, xyz, values, out)
-    _stationarity_summary(data, out, console)
-    if unplaced:
-        console.say(f"  {unplaced} composite(s) without a position left out")
+    folder.clear()
+    report, _ = _stationarity(data.xyz, data.values, data.hole, args, out, data.rows, data.domain_text, labels,
+                              model_axes=axes)
+    _stationarity_figures(report, data.xyz, data.values, out)
+    _stationarity_summary(report, out, console)
+    if data.unplaced:
+        console.say(f"  {data.unplaced} composite(s) without a position left out")
+    folder.finish()
     return 0
 
 
@@ -897,7 +1143,8 @@ def _options_of(args) -> dict:
 
 
 def cmd_fit(args, console: Console) -> int:
-    out = _out_dir(args.out)
+    folder = _out_dir(args)
+    out = folder.path
     names = ["reading composites", "searching directions", "fanning about the major axis",
              "refining the axes on the variogram volume", "fitting the model", f"bootstrap of {args.bootstrap} "
              "replicates", "checking the drill pattern"]
@@ -905,19 +1152,24 @@ def cmd_fit(args, console: Console) -> int:
 
     with console.stages(names) as step:
         step(names[0])
-        xyz, values, hole, depth, length, unplaced = _read_composites(args.composites, args.value, args.domain)
+        data = _read_composites(args.composites, args.value, args.domain)
+        args.value = data.value
+        values = data.values
         args.provenance = provenance({"composites": args.composites}, _options_of(args), {"composites": len(values)})
+        folder.clear()
         trend = None
         if args.detrend != "none":
             from .stationarity import detrend
 
-            trend, fitted = detrend(xyz, values, args.detrend)
+            trend, fitted = detrend(data.xyz, values, args.detrend)
             values = values - fitted
-        fitted = _fit_and_check(xyz, values, hole, depth, length, args, out, step, args.domain, detrend=trend)
+        fitted = _fit_and_check(data.xyz, values, data.hole, data.depth, data.length, args, out, step,
+                                data.domain_text, detrend=trend)
     _model_summary(fitted["model"], out, console)
     console.say(f"  caution: {CAUTION}")
-    if unplaced:
-        console.say(f"  {unplaced} composite(s) without a position left out")
+    if data.unplaced:
+        console.say(f"  {data.unplaced} composite(s) without a position left out")
+    folder.finish()
     return 0
 
 
@@ -941,11 +1193,7 @@ def _scene(xyz, values, hole, depth, hole_names, model: dict, volume, args, out:
     pairs, chosen = None, None
     if o["pairs_axis"] != "none" or o["pairs_direction"]:
         if o["pairs_direction"]:
-            try:
-                trend, plunge = (float(v) for v in str(o["pairs_direction"]).split("/"))
-            except ValueError:
-                raise UsageError(f"--pairs-direction {o['pairs_direction']!r}: write trend/plunge, for example "
-                                 "45/10.") from None
+            trend, plunge = _trend_plunge(o["pairs_direction"], "--pairs-direction")
             from .orientation import vector_from_trend_plunge
 
             along = vector_from_trend_plunge(trend, plunge)
@@ -955,22 +1203,14 @@ def _scene(xyz, values, hole, depth, hole_names, model: dict, volume, args, out:
             trend, plunge = trend_plunge(along)
             label = f"the {o['pairs_axis'].replace('_', '-')} axis"
         lag = float(model.get("fit", {}).get("lag_m") or max(np.ptp(xyz, axis=0)) / 30)
-        lags = 12
+        lags = SCENE_LAGS
         sets = Sets(directions=[Direction(trend, plunge, 15.0)], directional_bins=LagBins(lag, lags))
         k = o["pairs_lag"] or int(min(lags, max(1, round(0.5 * fitted.range_along(along) / lag))))
-        if not 1 <= k <= lags:
-            raise UsageError(f"--pairs-lag {k}: give a lag bin from 1 to {lags}.")
         pairs = bin_pairs(xyz, np.nan_to_num(values, nan=float(np.nanmedian(values))), sets, "directional", k, 0,
                           max_pairs=o["max_pairs"], hole=hole, depth=depth)
         chosen = {"along": label, "lag_bin": k, "lag_m": k * lag, "angle_tolerance_deg": 15.0,
                   "pairs_in_bin": pairs["pairs_in_bin"], "pairs_drawn": int(len(pairs["i"]))}
-    centre = None
-    if o["centre"]:
-        try:
-            centre = [float(v) for v in str(o["centre"]).split(",")]
-            assert len(centre) == 3
-        except (ValueError, AssertionError):
-            raise UsageError(f"--centre {o['centre']!r}: write X,Y,Z, for example 24500,61200,300.") from None
+    centre = o["centre"]
     from viewer import scene as sc
 
     try:
@@ -1009,23 +1249,30 @@ def _scene_summary(drawn: dict, out: Path, console: Console):
 
 
 def cmd_view(args, console: Console) -> int:
-    import numpy as np
-    import pandas as pd
+    import zipfile
 
-    out = _out_dir(args.out)
+    import numpy as np
+
+    folder = _out_dir(args)
+    out = folder.path
     model, _ = _read_model(args.model)
     value = args.value or model.get("variable")
     domain = args.domain if args.domain is not None else model.get("domain")
-    xyz, values, hole, depth, _, unplaced, rows, _ = _read_composites(args.composites, value, domain, with_rows=True)
-    names = pd.factorize(rows["hole"])[1]
+    data = _read_composites(args.composites, value, domain, varying=False)
     volume = None
     stored = Path(args.model).with_name("volume.npz")
     if stored.exists():
-        volume = dict(np.load(stored))
-    drawn = _scene(xyz, values, hole, depth, names, model, volume, args, out, value)
+        try:
+            with np.load(stored) as found:
+                volume = {key: found[key] for key in ("gamma", "pairs", "cell_m", "half_counts")}
+        except (OSError, ValueError, KeyError, zipfile.BadZipFile) as exc:
+            console.warn(f"{stored} cannot be read ({exc}); the scene is drawn without the variogram volume")
+    folder.clear()
+    drawn = _scene(data.xyz, data.values, data.hole, data.depth, data.hole_names, model, volume, args, out, data.value)
     _scene_summary(drawn, out, console)
-    if unplaced:
-        console.say(f"  {unplaced} composite(s) without a position left out")
+    if data.unplaced:
+        console.say(f"  {data.unplaced} composite(s) without a position left out")
+    folder.finish()
     return 0
 
 
@@ -1043,24 +1290,25 @@ def _data_summary(tables, rejected, result, xyz, value) -> dict:
 
 
 def _run_workflow(tables, rejected, result, args, out, step, value, domain, inputs):
-    """From the composites of a run or the demo: stationarity, fit, pattern, report. Returns
-    (stationarity data, fitted dict)."""
+    """From the composites of a run or the demo: stationarity, fit, pattern, report. ``domain``: None
+    or ``COLUMN=VALUE``. Returns (stationarity data, fitted dict)."""
     import numpy as np
 
     from .provenance import provenance
 
-    column, wanted = domain if domain else (None, None)
-    xyz, values, hole, depth, length, _, rows = _composites_arrays(result.composites, value, domain, with_rows=True)
+    data = _composites_arrays(result.composites, value, domain)
+    xyz, values, hole = data.xyz, data.values, data.hole
     rows_in = {role: len(getattr(tables, role)) for role in ("collars", "surveys", "intervals")}
     args.provenance = provenance(inputs, _options_of(args), rows_in)
-    domain_text = f"{column}={wanted}" if wanted else None
+    domain_text = data.domain_text
     step("checking stationarity")
     labels = None
-    if column and column in result.composites.columns:
-        labels = (result.composites[value].to_numpy(dtype=np.float64), result.composites[column])
-    st, residuals = _stationarity(xyz, values, hole, args, out, rows, domain_text, labels)
-    fitted = _fit_and_check(xyz, values if residuals is None else residuals, hole, depth, length, args, out, step,
-                            domain_text, lead=_lead_warnings(st), detrend=st.get("detrend"))
+    if data.domain_column:
+        labels = (result.composites[value].to_numpy(dtype=np.float64), result.composites[data.domain_column])
+    st, residuals = _stationarity(xyz, values, hole, args, out, data.rows, domain_text, labels)
+    lead = [f"Tables: {text}" for text in tables.notices] + _lead_warnings(st)
+    fitted = _fit_and_check(xyz, values if residuals is None else residuals, hole, data.depth, data.length, args, out,
+                            step, domain_text, lead=lead, detrend=st.get("detrend"))
     step("writing the report")
     from .model import Model
     from .outputs import write_json
@@ -1071,11 +1319,9 @@ def _run_workflow(tables, rejected, result, args, out, step, value, domain, inpu
     write_json(st, out / "stationarity.json")
     made = _stationarity_figures(st, xyz, values, out)
     step("drawing the 3D scene")
-    import pandas as pd
-
     try:
-        drawn = _scene(xyz, values, hole, depth, pd.factorize(rows["hole"])[1], fitted["model"], fitted["volume"],
-                       args, out, value)
+        drawn = _scene(xyz, values, hole, data.depth, data.hole_names, fitted["model"], fitted["volume"], args, out,
+                       value)
     except UsageError as exc:  # no off-screen rendering here: the rest of the run stands
         drawn = {"images": {}, "skipped": str(exc)}
     fitted["scene"] = drawn
@@ -1087,8 +1333,7 @@ def _run_workflow(tables, rejected, result, args, out, step, value, domain, inpu
                "stationarity": st, "values": values, "xyz": xyz, "hole": hole, "model": fitted["model"],
                "fit_variograms": fitted["fit_variograms"], "volume": fitted["volume"], "pattern": fitted["pattern"],
                "provenance": args.provenance, "caution": CAUTION, "figures": made, "scene": drawn,
-               "warnings": fitted["model"]["warnings"] + [f"Drill pattern: {w}" for w in fitted["pattern"]["warnings"]]
-               + [f"Fit: {w}" for w in fitted["model"]["fit"]["problems"]]}
+               "warnings": fitted["model"]["warnings"]}
     write_report(out / "report.html", context)
     return st, fitted
 
@@ -1099,41 +1344,49 @@ RUN_STAGES = ["checking stationarity", "searching directions", "fanning about th
               "writing the report"]
 
 
+RUN_COMPOSITING = dict(residual="merge", merge_below=0.5, equal=False, min_coverage=0.5, density=None,
+                       density_default=None, whole_run=False, bench=None, bench_base=0.0, cap=[])
+
+
 def cmd_run(args, console: Console) -> int:
-    out = _out_dir(args.out)
-    domain_column, wanted = None, None
-    if args.domain:
-        domain_column, _, wanted = args.domain.partition("=")
-        if not wanted:
-            raise UsageError(f"--domain {args.domain!r}: write COLUMN=VALUE, for example domain=FRESH.")
-    composite_args = argparse.Namespace(**{**vars(args), "domain": domain_column, "residual": "merge",
-                                           "merge_below": 0.5, "equal": False, "min_coverage": 0.5,
-                                           "density": None, "density_default": None, "whole_run": False,
-                                           "bench": None, "bench_base": 0.0, "cap": []})
+    folder = _out_dir(args)
+    out = folder.path
+    if args.domain is not None and "=" not in args.domain:
+        raise UsageError(f"--domain {args.domain!r}: write COLUMN=VALUE, for example --domain domain=FRESH.")
+    composite_args = argparse.Namespace(**{**vars(args), **RUN_COMPOSITING})
     _composite_options(composite_args)
+    options = None
+
+    def check(tables):  # the options against the tables, before anything is written
+        nonlocal options
+        args.value = _value_column(args.value, tables.value_columns, "the intervals table's value columns")
+        column = None
+        if args.domain:
+            column, wanted = _domain_column(args.domain, tables.category_columns)
+            _domain_rows(tables.intervals, column, wanted, "the intervals table")  # a value it holds
+            args.domain = f"{column}={wanted}"
+        options = _resolve_composite_columns(_composite_options(composite_args, column), tables)
+
     names = ["reading and validating", "desurveying", "compositing", "writing composites", *RUN_STAGES]
     with console.stages(names) as step:
         step(names[0])
-        tables, rejected = _checked_tables(composite_args, out)
-        if args.value not in tables.value_columns:
-            raise UsageError(f"--value {args.value!r}: not a value column of the intervals table (value columns: "
-                             f"{', '.join(tables.value_columns) or 'none'}).")
-        result = _composite(tables, rejected, composite_args, out, step)
+        tables, rejected = _checked_tables(composite_args, folder, console, check=check)
+        result = _composite(tables, rejected, options, args, out, step)
         inputs = {"collars": args.collars, "surveys": args.surveys, "intervals": args.intervals}
-        st, fitted = _run_workflow(tables, rejected, result, args, out, step, args.value,
-                                   (domain_column, wanted) if wanted else None, inputs)
+        st, fitted = _run_workflow(tables, rejected, result, args, out, step, args.value, args.domain, inputs)
     _stationarity_summary(st, out, console)
     _composite_summary(result, out, console)
     _model_summary(fitted["model"], out, console)
     _scene_or_skip(fitted["scene"], out, console)
     console.say(f"report -> {out / 'report.html'}")
     console.say(f"  caution: {CAUTION}")
+    folder.finish()
     return 0
 
 
 def _scene_or_skip(drawn: dict, out: Path, console: Console):
     if drawn.get("skipped"):
-        console.say(f"  WARNING: the 3D scene was not drawn: {drawn['skipped']}")
+        console.say(f"  note: the 3D scene was not drawn (the rest of the run stands): {drawn['skipped']}")
     else:
         _scene_summary(drawn, out, console)
 
@@ -1162,7 +1415,9 @@ def cmd_demo(args, console: Console) -> int:
     from synthetic_holes import ProgramSpec, generate_program
 
     started = time.perf_counter()
-    out = _out_dir(args.out)
+    folder = _out_dir(args)
+    out = folder.path
+    folder.clear()
     names = ["generating the drill program", "reading and validating", "desurveying",
              "writing traces and samples", "compositing", "writing composites", *RUN_STAGES]
     with console.stages(names) as step:
@@ -1177,13 +1432,14 @@ def cmd_demo(args, console: Console) -> int:
             domain="domain", length=2.0, residual="merge", merge_below=0.5, equal=False, min_coverage=0.5,
             density="density", density_default=2.7, whole_run=False, bench=None, bench_base=0.0, cap=[],
         )
-        tables, rejected = _checked_tables(table_args, out)
+        tables, rejected = _checked_tables(table_args, folder, console)
         trace, traces, samples = _desurvey(tables, table_args, out, console, step)
-        result = _composite(tables, rejected, table_args, out, step, trace)
+        options = _resolve_composite_columns(_composite_options(table_args, "domain"), tables)
+        result = _composite(tables, rejected, options, table_args, out, step, trace)
         fit_args = argparse.Namespace(value="au_gpt", transform="none", lag=None, lags=12, structures="auto",
                                       bootstrap=50, seed=0, threads=None, detrend="none", demo_seed=args.seed,
                                       units="g/t")
-        st, fitted = _run_workflow(tables, rejected, result, fit_args, out, step, "au_gpt", ("domain", "FRESH"), paths)
+        st, fitted = _run_workflow(tables, rejected, result, fit_args, out, step, "au_gpt", "domain=FRESH", paths)
         data = fitted["model"]
     truth = program.truth
     console.say(f"drillaxis demo: the invented Tarn Hill program (seed {args.seed}) -> {out / 'data'}")
@@ -1205,6 +1461,7 @@ def cmd_demo(args, console: Console) -> int:
     _scene_or_skip(fitted["scene"], out, console)
     console.say(f"report -> {out / 'report.html'}")
     console.say(f"  caution: {CAUTION}")
+    folder.finish()
     console.say(f"done in {time.perf_counter() - started:.1f} s")
     return 0
 
@@ -1214,20 +1471,63 @@ COMMANDS = {"check": cmd_check, "desurvey": cmd_desurvey, "composite": cmd_compo
             "run": cmd_run, "demo": cmd_demo}
 
 
+class Terminated(KeyboardInterrupt):
+    """SIGTERM, raised where the program stands so that temporary files are removed on the way out."""
+
+
+def _on_terminate(signum, frame):
+    raise Terminated()
+
+
 def main(argv=None) -> int:
     _safe_streams()
+    if argv is None:  # the console script: a polite kill (SIGTERM) cleans up like Ctrl-C
+        import signal
+        import threading
+
+        if threading.current_thread() is threading.main_thread():
+            signal.signal(signal.SIGTERM, _on_terminate)
     parser = build_parser()
     args = parser.parse_args(argv)
     args.command_line = list(sys.argv[1:] if argv is None else argv)
     console = Console(getattr(args, "quiet", False))
+    _quiet_libraries()
     try:
         return COMMANDS[args.command](args, console)
     except DrillaxisError as exc:
         print(f"drillaxis {args.command}: error: {exc}", file=sys.stderr)
         return exc.exit_code
+    except MemoryError:
+        print(f"drillaxis {args.command}: error: not enough memory for this job. Fewer lags, fewer volume cells, "
+              "a shorter reach or a domain at a time need less.", file=sys.stderr)
+        return 1
+    except OSError as exc:  # the disk, not the data: full, read-only, gone
+        where = f" {exc.filename}" if getattr(exc, "filename", None) else ""
+        print(f"drillaxis {args.command}: error: cannot read or write{where}: {exc.strerror or exc}. Check the "
+              "disk space and the permissions of the folders given.", file=sys.stderr)
+        return 1
+    except Terminated:
+        print("drillaxis: terminated", file=sys.stderr)
+        return 143
     except KeyboardInterrupt:
         print("drillaxis: interrupted", file=sys.stderr)
         return 130
+
+
+def _quiet_libraries() -> None:
+    """Library chatter that tells a geologist nothing: pandas' fragmentation hints, numba's
+    performance notes, the notices of pyvista, VTK and trame about their own APIs."""
+    import warnings
+
+    warnings.filterwarnings("ignore", message=".*DataFrame is highly fragmented.*")
+    warnings.filterwarnings("ignore", module=r"(pyvista|vtkmodules|trame\w*|wslink)(\..*)?$")
+    warnings.filterwarnings("ignore", category=DeprecationWarning)
+    try:
+        from numba.core.errors import NumbaPerformanceWarning
+
+        warnings.filterwarnings("ignore", category=NumbaPerformanceWarning)
+    except ImportError:  # pragma: no cover
+        pass
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -37,6 +37,7 @@ from .errors import UsageError, ValidationError
 RESIDUAL_RULES = ("merge", "drop", "keep")
 MODES = ("length", "whole-run", "bench")
 EDGE_TOLERANCE_M = 1e-9  # residuals and overlaps shorter than this are round-off (metres)
+MAX_COMPOSITES = 20_000_000  # more pieces than this is a mistaken length, not a composite file
 BENCH_TRACE_STEP_M = 0.25  # spacing of the trace points used to find bench crossings
 
 
@@ -202,6 +203,7 @@ def _length_edges(top, bottom, options: CompositeOptions):
     """
     span = bottom - top
     L = float(options.length_m)
+    _refuse_too_many(float(np.sum(span)) / L + len(span), f"--length {L:g}")
     if options.equal:
         count = np.maximum(1, np.round(span / L)).astype(np.int64)
         c_run = np.repeat(np.arange(len(top)), count)
@@ -232,6 +234,7 @@ def _bench_edges(top, bottom, run_hole, trace, options: CompositeOptions):
     bench centre elevation of each piece."""
     H = float(options.bench_height_m)
     base = float(options.bench_base_m)
+    _refuse_too_many(float(np.sum(bottom - top)) / H + len(top), f"--bench {H:g}")
     steps = np.maximum(2, np.ceil((bottom - top) / BENCH_TRACE_STEP_M).astype(np.int64) + 1)
     g_run = np.repeat(np.arange(len(top)), steps)
     g_index = np.arange(len(g_run)) - np.repeat(np.cumsum(steps) - steps, steps)
@@ -254,6 +257,12 @@ def _bench_edges(top, bottom, run_hole, trace, options: CompositeOptions):
     c_to = edges_depth[1:][keep]
     c_run = edges_run[:-1][keep]
     return c_from, c_to, c_run
+
+
+def _refuse_too_many(count: float, option: str) -> None:
+    if count > MAX_COMPOSITES:
+        raise UsageError(f"{option}: that would cut the runs into about {count:.3g} composites (at most "
+                         f"{MAX_COMPOSITES:,}); give a length of the order of the samples' (metres, for example 2).")
 
 
 # --------------------------------------------------------------------------------------------
@@ -369,7 +378,6 @@ def composite(intervals: pd.DataFrame, value_columns, options: CompositeOptions,
     c_hole_code = run_hole[c_run]
     c_domain_code = run_domain[c_run]
     c_hole = pd.Categorical.from_codes(c_hole_code, categories=pd.Index(hole_ids, dtype=object))
-    out = pd.DataFrame({"hole": c_hole, "from": c_from, "to": c_to, "length": c_length, "sampled": coverage})
     if trace is not None:
         trace_index = trace.hole_index(hole_ids)[c_hole_code]
         mid = trace.positions(trace_index, 0.5 * (c_from + c_to))
@@ -377,19 +385,24 @@ def composite(intervals: pd.DataFrame, value_columns, options: CompositeOptions,
         end = trace.positions(trace_index, c_to)
     else:
         mid = start = end = np.full((len(c_from), 3), np.nan)
-    out["x"], out["y"], out["z"] = mid[:, 0], mid[:, 1], mid[:, 2]
+    # every column built first and joined once: one insert per column fragments a wide table
+    columns = {"hole": c_hole, "from": c_from, "to": c_to, "length": c_length, "sampled": coverage,
+               "x": mid[:, 0], "y": mid[:, 1], "z": mid[:, 2]}
     if options.domain:
-        out["domain"] = pd.Categorical.from_codes(c_domain_code, categories=pd.Index(domain_ids, dtype=object))
+        columns["domain"] = pd.Categorical.from_codes(c_domain_code, categories=pd.Index(domain_ids, dtype=object))
+        if options.domain != "domain":  # the input's own name too, so that COLUMN=VALUE selects as it reads
+            columns[options.domain] = columns["domain"]
     for v, column in enumerate(value_columns):
-        out[column] = value[:, v]
+        columns[column] = value[:, v]
     if options.mode == "bench":
         z_mid = mid[:, 2]
-        out["bench"] = options.bench_base_m + options.bench_height_m * (
+        columns["bench"] = options.bench_base_m + options.bench_height_m * (
             np.floor((z_mid - options.bench_base_m) / options.bench_height_m) + 0.5)
     for v, column in enumerate(value_columns):
-        out[f"{column}_sampled"] = sampled[:, v]
-    out["x_from"], out["y_from"], out["z_from"] = start[:, 0], start[:, 1], start[:, 2]
-    out["x_to"], out["y_to"], out["z_to"] = end[:, 0], end[:, 1], end[:, 2]
+        columns[f"{column}_sampled"] = sampled[:, v]
+    columns.update({"x_from": start[:, 0], "y_from": start[:, 1], "z_from": start[:, 2],
+                    "x_to": end[:, 0], "y_to": end[:, 1], "z_to": end[:, 2]})
+    out = pd.DataFrame(columns)
 
     left = ~keep
     reasons = [
@@ -398,13 +411,14 @@ def composite(intervals: pd.DataFrame, value_columns, options: CompositeOptions,
         f"{options.min_coverage:g}"
         for is_dropped, covered, length_m in zip(dropped[left], coverage[left], c_length[left])
     ]
-    left_out = pd.DataFrame({"table": "composites", "line": pd.array([pd.NA] * int(left.sum()), dtype="Int64"),
-                             "hole": hole_ids[c_hole_code[left]], "from": c_from[left], "to": c_to[left]})
+    left_columns = {"table": "composites", "line": pd.array([pd.NA] * int(left.sum()), dtype="Int64"),
+                    "hole": hole_ids[c_hole_code[left]], "from": c_from[left], "to": c_to[left]}
     if options.domain:
-        left_out["domain"] = domain_ids[c_domain_code[left]]
-    left_out["reason"] = reasons
+        left_columns["domain"] = domain_ids[c_domain_code[left]]
+    left_columns["reason"] = reasons
     for v, column in enumerate(value_columns):
-        left_out[f"metal_{column}"] = metal[left, v]
+        left_columns[f"metal_{column}"] = metal[left, v]
+    left_out = pd.DataFrame(left_columns)
 
     check = _reconcile(value_columns, hole_ids, domain_ids, hole_code, domain_code, length, weight, weighted,
                        raw_values, capped_metal, c_run, run_hole, run_domain, value, mass, metal, keep,
@@ -421,6 +435,7 @@ def composite(intervals: pd.DataFrame, value_columns, options: CompositeOptions,
         "density_filled": density_filled,
         "caps": cap_rows,
         "largest_metal_difference": float(np.abs(check["difference"]).max()) if len(check) else 0.0,
+        "largest_relative_metal_difference": float(check["relative_difference"].max()) if len(check) else 0.0,
     }
     return CompositeResult(composites, left_out, check, summary, warnings)
 
@@ -433,26 +448,32 @@ def _reconcile(value_columns, hole_ids, domain_ids, hole_code, domain_code, leng
     comp_key = run_hole[c_run] * n_d + run_domain[c_run]
     size = n_h * n_d
     used = np.flatnonzero(np.bincount(sample_key, minlength=size) > 0)
-    parts = []
+    names = ("input_metal", "capped_metal", "composite_metal", "left_out_metal")
+    parts = {name: [] for name in names}
     for v, column in enumerate(value_columns):
         w = length * (weight if weighted[v] else 1.0)
         present = ~np.isnan(raw_values[:, v])
-        before = np.bincount(sample_key[present], weights=(w * raw_values[:, v])[present], minlength=size)
-        capped = np.bincount(sample_key, weights=capped_metal[:, v], minlength=size)
+        parts["input_metal"].append(np.bincount(sample_key[present], weights=(w * raw_values[:, v])[present],
+                                                minlength=size)[used])
+        parts["capped_metal"].append(np.bincount(sample_key, weights=capped_metal[:, v], minlength=size)[used])
         # composite metal recomputed from the written value: what a user summing the output gets
         held = np.where(keep & (mass[:, v] > 0), np.nan_to_num(value[:, v]) * mass[:, v], 0.0)
-        composite_metal = np.bincount(comp_key, weights=held, minlength=size)
-        left = np.bincount(comp_key, weights=np.where(keep, 0.0, metal[:, v]), minlength=size)
-        parts.append(pd.DataFrame({
-            "hole": hole_ids[used // n_d], "domain": domain_ids[used % n_d], "value": column,
-            "input_metal": before[used], "capped_metal": capped[used],
-            "input_after_cap": before[used] - capped[used], "composite_metal": composite_metal[used],
-            "left_out_metal": left[used],
-        }))
-    check = pd.concat(parts, ignore_index=True) if parts else pd.DataFrame(
-        columns=["hole", "domain", "value", "input_metal", "capped_metal", "input_after_cap",
-                 "composite_metal", "left_out_metal"])
+        parts["composite_metal"].append(np.bincount(comp_key, weights=held, minlength=size)[used])
+        parts["left_out_metal"].append(np.bincount(comp_key, weights=np.where(keep, 0.0, metal[:, v]),
+                                                   minlength=size)[used])
+    n_values = len(value_columns)
+    joined = {name: np.concatenate(parts[name]) if n_values else np.zeros(0) for name in names}
+    check = pd.DataFrame({
+        "hole": np.tile(hole_ids[used // n_d], n_values), "domain": np.tile(domain_ids[used % n_d], n_values),
+        "value": np.repeat(np.asarray(value_columns, dtype=object), len(used)),
+        "input_metal": joined["input_metal"], "capped_metal": joined["capped_metal"],
+        "input_after_cap": joined["input_metal"] - joined["capped_metal"],
+        "composite_metal": joined["composite_metal"], "left_out_metal": joined["left_out_metal"],
+    })
     check["difference"] = check["input_after_cap"] - check["composite_metal"] - check["left_out_metal"]
+    scale = np.maximum(np.abs(check["input_after_cap"]), np.abs(check["composite_metal"]) + np.abs(check["left_out_metal"]))
+    with np.errstate(invalid="ignore", divide="ignore"):  # relative to the metal at stake: round-off reads ~1e-16
+        check["relative_difference"] = np.where(scale > 0, np.abs(check["difference"]) / scale, 0.0)
     if not by_domain:
         check = check.drop(columns="domain")
     return check

@@ -12,7 +12,7 @@ Example
 -------
 >>> import pandas as pd
 >>> collars = pd.DataFrame({"hole": ["A"], "x": [0.0], "y": [0.0], "z": [100.0], "depth": [100.0]})
->>> surveys = pd.DataFrame({"hole": ["A", "A"], "at": [0.0, 100.0], "azimuth": [90.0, 90.0],
+>>> surveys = pd.DataFrame({"hole": ["A", "A"], "survey_depth": [0.0, 100.0], "azimuth": [90.0, 90.0],
 ...                         "dip": [-90.0, -90.0]})
 >>> trace = Desurvey().fit(collars, surveys)
 >>> trace.positions(["A"], [50.0]).round(6).tolist()
@@ -37,6 +37,7 @@ DIP_CONVENTIONS = ("negative-down", "positive-down")
 _METHOD_CODE = {name: i for i, name in enumerate(METHODS)}
 SMALL_ANGLE = 1e-4  # radians: below it the ratio factor and sinc use their series
 NEAR_REVERSAL = math.pi - 1e-6  # a dogleg this close to 180 degrees has no defined arc
+MAX_TRACE_POINTS = 50_000_000  # traces.csv beyond this is a mistaken --step, not a trace file
 
 
 def direction_vectors(azimuth_deg, dip_deg, dip_convention: str = "negative-down",
@@ -309,7 +310,7 @@ class Desurvey:
         known = s_index >= 0
         part = pd.DataFrame({
             "h": s_index[known],
-            "at": surveys["at"].to_numpy(dtype=np.float64)[known],
+            "at": surveys["survey_depth"].to_numpy(dtype=np.float64)[known],
             "azimuth": surveys["azimuth"].to_numpy(dtype=np.float64)[known],
             "dip": surveys["dip"].to_numpy(dtype=np.float64)[known],
         })
@@ -380,6 +381,9 @@ class Desurvey:
         n_holes = len(self.hole_ids_)
         end = np.nan_to_num(self.end_depth_, nan=0.0)
         n_grid = np.floor(end / step_m + 1e-9).astype(np.int64) + 1
+        if float(n_grid.sum()) > MAX_TRACE_POINTS:
+            raise UsageError(f"--step {step_m:g}: the traces would hold about {float(n_grid.sum()):.3g} points (at most "
+                             f"{MAX_TRACE_POINTS:,}); give a step of the order of a metre.")
         grid_hole = np.repeat(np.arange(n_holes), n_grid)
         first = np.repeat(np.cumsum(n_grid) - n_grid, n_grid)
         grid_depth = (np.arange(len(grid_hole)) - first) * step_m

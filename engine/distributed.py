@@ -40,9 +40,12 @@ def client_for(address: str):
             raise UsageError(f"--dask {address!r}: at least one worker.")
         cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None)
         return Client(cluster), cluster
+    if "://" not in address or not address.split("://", 1)[1]:
+        raise UsageError(f"--dask {address!r}: give a scheduler address such as tcp://host:8786, or local:N for N "
+                         "local worker processes.")
     try:
         return Client(address, timeout=30), None
-    except OSError as exc:
+    except (OSError, ValueError, TimeoutError) as exc:
         raise UsageError(f"--dask {address!r}: cannot reach the scheduler ({exc}).") from None
 
 

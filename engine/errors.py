@@ -41,10 +41,17 @@ class UsageError(DrillaxisError, ValueError):
     exit_code = 2
 
 
+def shorten(text, limit: int = 60) -> str:
+    """``text`` cut to ``limit`` characters with an ellipsis: a hole id or cell of megabytes is quoted,
+    not echoed whole."""
+    text = str(text)
+    return text if len(text) <= limit else text[:limit - 1] + "…"
+
+
 def list_some(items, limit: int = 5) -> str:
-    """Quote up to ``limit`` items, and say how many more there are."""
+    """Quote up to ``limit`` items (each shortened), and say how many more there are."""
     items = [str(i) for i in items]
-    shown = ", ".join(repr(i) for i in items[:limit])
+    shown = ", ".join(repr(shorten(i)) for i in items[:limit])
     if len(items) > limit:
         shown += f" and {len(items) - limit} more"
     return shown

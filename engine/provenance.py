@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import datetime
-import hashlib
 import platform
 import sys
 from importlib import metadata
@@ -13,11 +12,9 @@ PACKAGES = ("drillaxis", "numpy", "numba", "scipy", "pandas", "pyarrow", "matplo
 
 
 def sha256(path) -> str:
-    digest = hashlib.sha256()
-    with open(path, "rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
+    from .outputs import file_digest
+
+    return file_digest(path)
 
 
 def versions() -> dict:

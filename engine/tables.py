@@ -29,7 +29,7 @@ import numpy as np
 import pandas as pd
 
 from ._jit import segmented_running_max
-from .errors import TableError, UsageError, ValidationError, list_some
+from .errors import TableError, UsageError, ValidationError, list_some, shorten
 
 TABLE_NAMES = ("collars", "surveys", "intervals")
 
@@ -40,7 +40,7 @@ ROLE_SYNONYMS: dict[str, tuple[str, ...]] = {
     "y": ("y", "north", "northing"),
     "z": ("z", "rl", "elev", "elevation"),
     "depth": ("depth", "eoh", "totaldepth", "maxdepth", "length"),
-    "at": ("depth", "at", "md", "distance"),
+    "survey_depth": ("depth", "surveydepth", "at", "md", "distance"),
     "azimuth": ("azimuth", "azi", "az", "bearing"),
     "dip": ("dip",),
     "from": ("from", "depthfrom", "fromm"),
@@ -48,10 +48,13 @@ ROLE_SYNONYMS: dict[str, tuple[str, ...]] = {
 }
 ROLES = tuple(ROLE_SYNONYMS)
 
+#: Role names of earlier releases, still accepted in ``--column ROLE=NAME`` with a note.
+RENAMED_ROLES = {"at": "survey_depth"}
+
 #: Roles each table needs (required) and may have (optional).
 TABLE_ROLES: dict[str, tuple[tuple[str, ...], tuple[str, ...]]] = {
     "collars": (("hole", "x", "y", "z", "depth"), ("azimuth", "dip")),
-    "surveys": (("hole", "at", "azimuth", "dip"), ()),
+    "surveys": (("hole", "survey_depth", "azimuth", "dip"), ()),
     "intervals": (("hole", "from", "to"), ()),
 }
 
@@ -68,6 +71,10 @@ BELOW_DETECTION_RULES = ("half", "limit", "zero", "missing")
 COORDINATE_LIMIT_M = 1e8
 DEPTH_LIMIT_M = 1e5
 VALUE_LIMIT = 1e100  # squares of larger values overflow in variogram sums
+# Grades, densities and recoveries of any common unit stay far below this (a pure metal is 1e6 ppm,
+# 1e9 ppb); larger numbers are codes, sample numbers or unit mistakes, and drown the round-off of the
+# metal reconciliation. One warning per column names them (common practice).
+PLAUSIBLE_VALUE_LIMIT = 1e9
 DEPTH_TOLERANCE_M = 1e-6
 
 # Survey pairs with a dogleg of at least DOGLEG_MIN_DEG and a severity above
@@ -75,6 +82,7 @@ DEPTH_TOLERANCE_M = 1e-6
 # mistyped angle or magnetic interference, rarely from the hole itself).
 DOGLEG_MIN_DEG = 5.0
 DOGLEG_SEVERITY_DEG_PER_30M = 10.0
+SHORT_SURVEY_STEP_M = 1.0  # below it a bend is reported with the step, not as a rate per 30 m
 
 _NUMBER = r"[-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?"
 _BELOW_RE = re.compile(rf"^<\s*({_NUMBER})$")
@@ -88,6 +96,17 @@ OK, MISSING, TEXT, BELOW, ABOVE, NOT_FINITE = 0, 1, 2, 3, 4, 5
 def normalise_name(name: str) -> str:
     """Lower case, with spaces, dots, dashes and underscores removed."""
     return re.sub(r"[\s._\-]", "", str(name)).lower()
+
+
+def find_column(columns, name) -> str | None:
+    """The column called ``name``: the exact name, else the one column whose name matches it ignoring
+    case, spaces, dots, dashes and underscores (see :func:`normalise_name`); None when none or several
+    do."""
+    columns = [str(c) for c in columns]
+    if name in columns:
+        return name
+    matches = [c for c in columns if normalise_name(c) == normalise_name(name)]
+    return matches[0] if len(matches) == 1 else None
 
 
 # --------------------------------------------------------------------------------------------
@@ -112,6 +131,10 @@ class Findings:
             problems = [problems] * len(lines)
         for line, hole, problem in zip(lines, holes, problems):
             self._rows.append((table, int(line), hole, column, severity, problem))
+
+    def rows(self) -> list[tuple]:
+        """The findings so far, as ``(table, line, hole, column, severity, problem)`` tuples."""
+        return list(self._rows)
 
     def extend(self, other: "Findings"):
         self._rows.extend(other._rows)
@@ -171,6 +194,13 @@ def _decode(data: bytes, path: str) -> tuple[str, list[str]]:
         raise TableError(
             f"{path}: this is not a text table (it holds NUL bytes: a binary file, or UTF-16 "
             "text). Save it as CSV in UTF-8, or give a Parquet file ending in .parquet."
+        )
+    nul = data.find(b"\x00", len(head))
+    if nul >= 0:  # a damaged file: a NUL byte deep inside would become part of a cell's text
+        line = data.count(b"\n", 0, nul) + 1
+        raise TableError(
+            f"{path}, line {line}: the line holds a NUL byte, which no text table has: the file is damaged "
+            "(a failed copy or export). Export the table again."
         )
     notes = []
     try:
@@ -266,6 +296,12 @@ def read_raw_table(path, name: str, text_columns=frozenset()) -> RawTable:
     except pd.errors.ParserError as exc:
         message = str(exc)
         found = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", message)
+        if "EOF inside string" in message:
+            line = _unclosed_quote_line(text, delimiter)
+            raise TableError(
+                f"{path}, line {line}: a quote opened on this line is never closed, so the rest of the file "
+                "would be one cell. Close the quote (or remove it) on that line."
+            ) from None
         if found:
             expected, line, saw = found.groups()
             raise TableError(
@@ -314,6 +350,18 @@ def read_raw_table(path, name: str, text_columns=frozenset()) -> RawTable:
     return RawTable(name, path, frame, lines, delimiter, notes)
 
 
+def _unclosed_quote_line(text: str, delimiter: str) -> int:
+    """The editor line on which the record holding an unclosed quote starts."""
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delimiter, strict=True)
+    start = 1
+    try:
+        for _ in reader:
+            start = reader.line_num + 1
+    except csv.Error:
+        pass
+    return start
+
+
 def _empty_cells(series: pd.Series) -> np.ndarray:
     if pd.api.types.is_numeric_dtype(series.dtype):
         return series.isna().to_numpy()
@@ -337,14 +385,21 @@ def _read_parquet(p: Path, name: str) -> RawTable:
 # --------------------------------------------------------------------------------------------
 
 
-def parse_column_options(items) -> dict[str, str]:
-    """Turn ``["hole=BHID", "dip=DIP_DEG"]`` into ``{"hole": "BHID", "dip": "DIP_DEG"}``."""
+def parse_column_options(items, notes: list | None = None) -> dict[str, str]:
+    """Turn ``["hole=HOLE_NAME", "dip=DIP_DEG"]`` into ``{"hole": "HOLE_NAME", "dip": "DIP_DEG"}``. A
+    role name of an earlier release (``at``) is taken with a sentence appended to ``notes``."""
     explicit: dict[str, str] = {}
     for item in items or ():
         if "=" not in item:
-            raise UsageError(f"--column {item!r}: write ROLE=NAME, for example --column hole=BHID.")
+            raise UsageError(f"--column {item!r}: write ROLE=NAME, for example --column hole=HOLE_NAME.")
         role, name = (part.strip() for part in item.split("=", 1))
         role = role.lower()
+        if role in RENAMED_ROLES:
+            if notes is not None:
+                notes.append(f"--column {role}=...: the role {role!r} is now called {RENAMED_ROLES[role]!r}; "
+                             f"write --column {RENAMED_ROLES[role]}={name} ({role!r} will stop working in a "
+                             "later release)")
+            role = RENAMED_ROLES[role]
         if role not in ROLES:
             raise UsageError(f"--column {item!r}: unknown role {role!r}; roles are {', '.join(ROLES)}.")
         if not name:
@@ -493,6 +548,7 @@ class DrillTables:
     columns: dict[str, dict[str, str]]
     findings: pd.DataFrame
     options: dict = field(default_factory=dict)
+    notices: list = field(default_factory=list)  # warnings about the whole tables, printed loudly
 
     @property
     def error_count(self) -> int:
@@ -520,7 +576,7 @@ class DrillTables:
                 where += f", line {int(first['line'])}"
             raise ValidationError(
                 f"the tables hold {len(errors)} error(s); the first: {where}, hole "
-                f"{first['hole']!r}, column {first['column']!r}: {first['problem']}. Run "
+                f"{shorten(first['hole'])!r}, column {shorten(first['column'])!r}: {first['problem']}. Run "
                 "'drillaxis check' for the full list, fix the rows, or pass --skip-bad-rows to leave "
                 "them out (they go to rejected.csv).",
                 findings=self.findings,
@@ -548,19 +604,19 @@ class DrillTables:
         mask, reasons = error_reasons("collars", self.collars)
         collars = reject("collars", self.collars, mask, reasons)
         good_holes = set(collars["hole"])
-        lost_holes = set(self.collars.loc[mask, "hole"])
+        lost = self.collars.loc[mask, ["hole", "_line"]].assign(reason=reasons[mask])
+        lost_why = {h: f"the collar row of this hole (line {line}) was rejected: {reason}"
+                    for h, line, reason in lost.drop_duplicates("hole").itertuples(index=False)}
         tables = {}
         for name in ("surveys", "intervals"):
             frame = getattr(self, name)
             mask, reasons = error_reasons(name, frame)
             frame = reject(name, frame, mask, reasons)
-            lost = (~frame["hole"].isin(good_holes)).to_numpy()
-            why = np.where(
-                frame["hole"].isin(lost_holes).to_numpy(),
-                "the collar row of this hole was rejected",
-                "the hole has no usable collar row",
-            )
-            tables[name] = reject(name, frame, lost, why)
+            gone = (~frame["hole"].isin(good_holes)).to_numpy()
+            why = np.full(len(frame), "the hole has no usable collar row", dtype=object)
+            holes = frame["hole"].to_numpy()
+            why[gone] = [lost_why.get(h, why[0]) for h in holes[gone]]
+            tables[name] = reject(name, frame, gone, why)
         rejected_frame = (
             pd.concat(rejected, ignore_index=True)
             if rejected
@@ -569,7 +625,7 @@ class DrillTables:
         clean = DrillTables(
             collars, tables["surveys"], tables["intervals"], list(self.value_columns),
             list(self.category_columns), dict(self.sources), dict(self.columns), self.findings,
-            dict(self.options),
+            dict(self.options), list(self.notices),
         )
         return clean, rejected_frame
 
@@ -638,22 +694,31 @@ def read_tables(
             )
     markers = MISSING_MARKERS | {str(m).strip().lower() for m in missing_markers}
     findings = Findings()
-    mappings = {name: match_columns(raw, explicit) for name, raw in raws.items()}
+    mappings, problems = {}, []
+    for name, raw in raws.items():  # every table's missing columns in one message
+        try:
+            mappings[name] = match_columns(raw, explicit)
+        except TableError as exc:
+            problems.append(str(exc))
+    if problems:
+        raise TableError(" ".join(problems))
     for raw in raws.values():
         for line, severity, problem in raw.notes:
-            findings.add(raw.name, line, "", "", severity, problem)
+            row = np.flatnonzero(raw.lines == line) if line is not None else []
+            hole = str(_as_text(raw.frame[mappings[raw.name]["hole"]].iloc[row[:1]]).iloc[0]) if len(row) else ""
+            findings.add(raw.name, line, hole, "", severity, problem)
     frames = {}
     for name, raw in raws.items():
         frames[name] = _typed_role_columns(raw, mappings[name], markers, findings)
-    value_columns, category_columns = _interval_data_columns(
+    value_columns, category_columns, frames["intervals"] = _interval_data_columns(
         raws["intervals"], mappings["intervals"], frames["intervals"], markers, missing_codes,
         below_detection, set(category_columns), findings,
     )
-    _validate(frames, dip_convention, findings)
+    notices = _validate(frames, dip_convention, findings, mappings)
     return DrillTables(
         frames["collars"], frames["surveys"], frames["intervals"], value_columns, category_columns,
         {n: r.path for n, r in raws.items()}, mappings, findings.frame(),
-        {"dip_convention": dip_convention, "below_detection": below_detection},
+        {"dip_convention": dip_convention, "below_detection": below_detection}, notices,
     )
 
 
@@ -677,12 +742,14 @@ def hole_codes(values, hole_ids) -> np.ndarray:
 
 
 class _View:
-    """One typed table with its columns fetched once as numpy arrays."""
+    """One typed table with its columns fetched once as numpy arrays. Findings name the user's own
+    column of a role (``columns``: role -> column as the file spells it)."""
 
-    def __init__(self, name: str, frame: pd.DataFrame, findings: Findings):
+    def __init__(self, name: str, frame: pd.DataFrame, findings: Findings, columns: dict | None = None):
         self.name = name
         self.frame = frame
         self.findings = findings
+        self.columns = dict(columns or {})
         self.lines = frame["_line"].to_numpy()
         self.holes = frame["hole"].to_numpy(dtype=object)
         self.named = self.holes != ""
@@ -701,7 +768,8 @@ class _View:
             return
         rows = np.flatnonzero(mask)
         text = problems if isinstance(problems, str) else problems(rows)
-        self.findings.add_rows(self.name, self.lines[rows], self.holes[rows], column, severity, text)
+        self.findings.add_rows(self.name, self.lines[rows], self.holes[rows], self.columns.get(column, column),
+                               severity, text)
 
     def missing(self, role, column, what):
         """Flag missing cells of a parsed role column; return the mask of usable (OK) cells."""
@@ -714,10 +782,11 @@ def _typed_role_columns(raw: RawTable, mapping: dict, markers, findings: Finding
     frame = pd.DataFrame({"_line": raw.lines})
     holes = _as_text(raw.frame[mapping["hole"]]).to_numpy(dtype=object)
     frame["hole"] = holes
+    decimal_comma = raw.delimiter not in (None, ",")  # "12,5" is a number where commas do not part cells
     for role, column in mapping.items():
         if role == "hole":
             continue
-        values, status = parse_numbers(raw.frame[column], missing_markers=markers)
+        values, status = parse_numbers(raw.frame[column], missing_markers=markers, decimal_comma=decimal_comma)
         frame[role] = values
         frame[f"_status_{role}"] = status
         bad = status == TEXT
@@ -755,6 +824,7 @@ def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_de
     holes = frame["hole"].to_numpy(dtype=object)
     lines = raw.lines
     value_columns, category_columns = [], []
+    added: dict = {}  # the new columns, joined to the frame once (one insert per column fragments it)
     reserved = {"hole", "from", "to", "_line"}
     forced = {normalise_name(c) for c in forced_categories}
     codes = np.asarray([float(c) for c in missing_codes], dtype=np.float64)
@@ -769,11 +839,11 @@ def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_de
             )
         series = raw.frame[column]
         if normalise_name(column) in forced:
-            frame[column] = _as_text(series).to_numpy(dtype=object)
+            added[column] = _as_text(series).to_numpy(dtype=object)
             category_columns.append(column)
             continue
         if _clearly_text(series, markers):
-            frame[column] = _as_text(series).to_numpy(dtype=object)
+            added[column] = _as_text(series).to_numpy(dtype=object)
             category_columns.append(column)
             continue
         values, status = parse_numbers(series, detection=True, below_detection=below_detection,
@@ -781,15 +851,24 @@ def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_de
         present = status != MISSING
         numeric = np.isin(status, (OK, BELOW, ABOVE, NOT_FINITE))
         if present.sum() and numeric.sum() < 0.8 * present.sum():
-            frame[column] = _as_text(series).to_numpy(dtype=object)
+            added[column] = _as_text(series).to_numpy(dtype=object)
             category_columns.append(column)
+            if numeric.sum() >= 0.5 * present.sum():  # mostly numbers: say why it is not a value column
+                text = np.flatnonzero(present & ~numeric)
+                cells = ", ".join(f"line {lines[r]}: {shorten(c, 20)!r}"
+                                  for r, c in zip(text[:3], _as_text(series.iloc[text[:3]])))
+                findings.add("intervals", None, "", column, "warning",
+                             f"column {column!r} is read as a category, not as values: {int(numeric.sum())} of "
+                             f"{int(present.sum())} filled cells are numbers but {len(text)} are not ({cells}"
+                             f"{' ...' if len(text) > 3 else ''}); if it holds values, fix those cells or name "
+                             "their text with --missing-marker")
             continue
         value_columns.append(column)
         if len(codes):
             coded = np.isin(values, codes) & (status == OK)
             values[coded] = np.nan
             status[coded] = MISSING
-        frame[column] = values
+        added[column] = values
         if not present.any():
             findings.add("intervals", None, "", column, "warning", f"column {column!r} holds no values")
         for code, severity, sentence in (
@@ -813,19 +892,30 @@ def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_de
         findings.add_rows("intervals", lines[huge], holes[huge], column, "error",
                           [f"value {v:g} is too large to compute with (limit {VALUE_LIMIT:g})"
                            for v in values[huge]])
+        large = (status == OK) & (np.abs(values) > PLAUSIBLE_VALUE_LIMIT) & ~huge
+        if large.any():
+            where = ", ".join(str(line) for line in lines[large][:5]) + (" ..." if large.sum() > 5 else "")
+            findings.add("intervals", None, "", column, "warning",
+                         f"{int(large.sum())} value(s) of {column!r} are larger than {PLAUSIBLE_VALUE_LIMIT:g} "
+                         f"(lines {where}; the largest {np.max(np.abs(values[large])):g}): not a plausible grade "
+                         "or density in any common unit; check for entry errors, codes for not sampled "
+                         "(--missing-code) or a unit mistake")
         negative = (status == OK) & (values < 0)
         findings.add_rows(
             "intervals", lines[negative], holes[negative], column, "warning",
             [f"negative value {v:g}; if it is a code for not sampled or below detection, name it "
              "with --missing-code" for v in values[negative]],
         )
-    return value_columns, category_columns
+    frame = pd.concat([frame, pd.DataFrame(added, index=frame.index)], axis=1) if added else frame
+    return value_columns, category_columns, frame
 
 
-def _validate(frames, dip_convention, findings: Findings):
-    collars = _View("collars", frames["collars"], findings)
-    surveys = _View("surveys", frames["surveys"], findings)
-    intervals = _View("intervals", frames["intervals"], findings)
+def _validate(frames, dip_convention, findings: Findings, mappings: dict | None = None) -> list[str]:
+    """Add every finding of the typed tables; return the notices that every command prints loudly."""
+    mappings = mappings or {}
+    collars = _View("collars", frames["collars"], findings, mappings.get("collars"))
+    surveys = _View("surveys", frames["surveys"], findings, mappings.get("surveys"))
+    intervals = _View("intervals", frames["intervals"], findings, mappings.get("intervals"))
 
     # ---- collars
     first = pd.Series(collars.holes).duplicated(keep="first").to_numpy()
@@ -836,7 +926,7 @@ def _validate(frames, dip_convention, findings: Findings):
     if dup.any():
         where = pd.Series(collars.lines[dup]).groupby(collars.holes[dup]).agg(lambda s: ", ".join(map(str, s)))
         collars.add(dup, "hole", "error", lambda rows: [
-            f"hole id {h!r} is used by more than one collar row (lines {where[h]}); hole ids must be unique"
+            f"hole id {shorten(h)!r} is used by more than one collar row (lines {where[h]}); hole ids must be unique"
             for h in collars.holes[rows]])
     for role in ("x", "y", "z"):
         ok = collars.missing(role, role, f"the collar has no {role} coordinate")
@@ -859,13 +949,13 @@ def _validate(frames, dip_convention, findings: Findings):
     # ---- surveys
     surveys.code = hole_codes(surveys.holes, ids)
     surveys.add(surveys.named & (surveys.code < 0), "hole", "error",
-                lambda rows: [f"hole {h!r} has no collar row" for h in surveys.holes[rows]])
-    ok_at = surveys.missing("at", "depth", "the survey row has no depth")
-    at = surveys.values("at")
-    surveys.add(ok_at & (at < 0), "depth", "error",
+                lambda rows: [f"hole {shorten(h)!r} has no collar row" for h in surveys.holes[rows]])
+    ok_at = surveys.missing("survey_depth", "survey_depth", "the survey row has no depth")
+    at = surveys.values("survey_depth")
+    surveys.add(ok_at & (at < 0), "survey_depth", "error",
                 lambda rows: [f"survey depth {v:g} is negative" for v in at[rows]])
     eoh = np.where(surveys.code >= 0, end_depth[np.maximum(surveys.code, 0)], np.nan)
-    surveys.add(ok_at & (at > eoh + DEPTH_TOLERANCE_M), "depth", "warning", lambda rows: [
+    surveys.add(ok_at & (at > eoh + DEPTH_TOLERANCE_M), "survey_depth", "warning", lambda rows: [
         f"survey at {a:g} m is past the end of the hole ({e:g} m)" for a, e in zip(at[rows], eoh[rows])])
     ok_az = surveys.missing("azimuth", "azimuth", "the survey row has no azimuth")
     ok_dip = surveys.missing("dip", "dip", "the survey row has no dip")
@@ -882,7 +972,7 @@ def _validate(frames, dip_convention, findings: Findings):
         where: dict = {}
         for r in np.flatnonzero(dup):
             where.setdefault((surveys.code[r], at[r]), []).append(str(surveys.lines[r]))
-        surveys.add(dup, "depth", "error", lambda rows: [
+        surveys.add(dup, "survey_depth", "error", lambda rows: [
             f"more than one survey row at depth {at[r]:g} (lines {', '.join(where[(surveys.code[r], at[r])])}); "
             "keep one" for r in rows])
     good = usable & ok_az & ok_dip & ~dup
@@ -890,19 +980,23 @@ def _validate(frames, dip_convention, findings: Findings):
     n_ids = len(ids)
     surveyed = np.bincount(surveys.code[surveys.code >= 0], minlength=n_ids) > 0
     no_survey = (collars.code >= 0) & ~surveyed[np.maximum(collars.code, 0)]
+    has_angles = np.zeros(len(collars.lines), dtype=bool)
+    if "azimuth" in collars.frame and "dip" in collars.frame:
+        has_angles = ((collars.status("azimuth") == OK) & (collars.status("dip") == OK)
+                      & _in_range(collars, "azimuth") & _in_range(collars, "dip"))
     if no_survey.any():
-        has_angles = np.zeros(len(collars.lines), dtype=bool)
-        if "azimuth" in collars.frame and "dip" in collars.frame:
-            has_angles = (collars.status("azimuth") == OK) & (collars.status("dip") == OK)
         collars.add(no_survey, "hole", "warning", lambda rows: [
             "the hole has no survey rows; its collar azimuth and dip are used" if a else
             "the hole has no survey rows and no collar azimuth and dip; it is taken as vertical"
             for a in has_angles[rows]])
+    _all_surveys_in_error(collars, surveys, findings, has_angles)
+    notices = _rising_holes(collars, surveys, order[good[order]], has_angles & no_survey, dip_convention,
+                            n_ids)
 
     # ---- intervals
     intervals.code = hole_codes(intervals.holes, ids)
     intervals.add(intervals.named & (intervals.code < 0), "hole", "error",
-                  lambda rows: [f"hole {h!r} has no collar row" for h in intervals.holes[rows]])
+                  lambda rows: [f"hole {shorten(h)!r} has no collar row" for h in intervals.holes[rows]])
     ok_from = intervals.missing("from", "from", "the interval has no from depth")
     ok_to = intervals.missing("to", "to", "the interval has no to depth")
     d_from, d_to = intervals.values("from"), intervals.values("to")
@@ -919,19 +1013,104 @@ def _validate(frames, dip_convention, findings: Findings):
     sampled = np.bincount(intervals.code[intervals.code >= 0], minlength=n_ids) > 0
     collars.add((collars.code >= 0) & ~sampled[np.maximum(collars.code, 0)], "hole", "warning",
                 "the hole has no interval rows")
+    return notices
+
+
+#: Allowed angles (degrees, both ends included): an azimuth of 360 is north, as survey exports write it.
+ANGLE_RANGES = {"azimuth": (0.0, 360.0), "dip": (-90.0, 90.0)}
+
+
+def _in_range(view: _View, role) -> np.ndarray:
+    low, high = ANGLE_RANGES[role]
+    values = view.values(role)
+    return ~((values < low) | (values > high))
 
 
 def _angle_ranges(view: _View, role) -> np.ndarray:
     values = view.values(role)
-    status = view.status(role)
+    bad = (view.status(role) == OK) & ~_in_range(view, role)
     if role == "azimuth":
-        bad = (status == OK) & ((values < 0) | (values >= 360))
-        sentence = "azimuth {v:g} is outside [0, 360); write it as a bearing from 0 to below 360"
+        sentence = "azimuth {v:g} is outside [0, 360]; write it as a bearing from 0 to 360"
     else:
-        bad = (status == OK) & ((values < -90) | (values > 90))
         sentence = "dip {v:g} is outside [-90, 90]; dip is measured from horizontal"
     view.add(bad, role, "error", lambda rows: [sentence.format(v=v) for v in values[rows]])
     return ~bad
+
+
+def _all_surveys_in_error(collars: _View, surveys: _View, findings: Findings, has_angles) -> None:
+    """A hole whose every survey row is in error loses them all with --skip-bad-rows: it then follows
+    its collar's azimuth and dip (a warning), or, when the collar has none, its path is unknown and
+    the collar is in error (so the hole and its intervals are left out, never drilled vertical)."""
+    in_error = {line for table, line, _, _, severity, _ in findings.rows() if table == "surveys" and
+                severity == "error" and line is not None}
+    known = surveys.code >= 0
+    if not known.any():
+        return
+    bad_row = np.fromiter((int(line) in in_error for line in surveys.lines), dtype=bool, count=len(surveys.lines))
+    n_ids = int(collars.code.max()) + 1 if (collars.code >= 0).any() else 0
+    rows_of = np.bincount(surveys.code[known], minlength=n_ids)
+    bad_of = np.bincount(surveys.code[known & bad_row], minlength=n_ids)
+    lost = (rows_of > 0) & (bad_of == rows_of)
+    if not lost.any():
+        return
+    lines_of: dict = {}
+    for code, line in zip(surveys.code[known & bad_row], surveys.lines[known & bad_row]):
+        if lost[code]:
+            lines_of.setdefault(int(code), []).append(str(line))
+    hit = (collars.code >= 0) & lost[np.maximum(collars.code, 0)]
+    first = pd.Series(collars.code).duplicated(keep="first").to_numpy()
+    hit &= ~first
+    where = {r: ", ".join(lines_of[int(collars.code[r])][:5]) + (" ..." if len(lines_of[int(collars.code[r])]) > 5
+                                                                  else "") for r in np.flatnonzero(hit)}
+    collars.add(hit & has_angles, "hole", "warning", lambda rows: [
+        f"every survey row of this hole is in error (lines {where[r]}): with --skip-bad-rows they are left out "
+        "and the hole follows its collar azimuth and dip" for r in rows])
+    collars.add(hit & ~has_angles, "hole", "error", lambda rows: [
+        f"every survey row of this hole is in error (lines {where[r]}) and the collar has no azimuth and dip: "
+        "the hole's path is unknown; fix the survey rows (with --skip-bad-rows the hole and its intervals are "
+        "left out)" for r in rows])
+
+
+def _rising_holes(collars: _View, surveys: _View, good_order, collar_only, dip_convention, n_ids) -> list[str]:
+    """Warn about each hole that starts upward under the dip convention, and return a loud notice
+    when most holes do: the usual sign of dips written positive downward without
+    --dip-convention positive-down. ``good_order``: usable survey rows sorted by hole and depth;
+    ``collar_only``: collar rows whose hole follows its collar angles."""
+    sign = -1.0 if dip_convention == "positive-down" else 1.0
+    first_dip = np.full(n_ids, np.nan)
+    where_row = np.full(n_ids, -1, dtype=np.int64)
+    codes = surveys.code[good_order]
+    if len(codes):
+        top = np.r_[True, codes[1:] != codes[:-1]]
+        first_dip[codes[top]] = surveys.values("dip")[good_order][top]
+        where_row[codes[top]] = good_order[top]
+    rising_survey = np.zeros(len(surveys.lines), dtype=bool)
+    ok = where_row >= 0
+    rising_survey[where_row[ok & (sign * np.nan_to_num(first_dip) > 0)]] = True
+    rising_collar = np.zeros(len(collars.lines), dtype=bool)
+    if collar_only.any():
+        dips = collars.values("dip")
+        rising_collar = collar_only & (sign * np.nan_to_num(dips) > 0)
+        first_dip[collars.code[collar_only]] = dips[collar_only]
+    convention = "negative" if sign > 0 else "positive"
+    sentence = ("the hole starts upward: dip {v:g} points up with dips {c} downward (--dip-convention); right for an "
+                "underground up-hole, otherwise the dip sign is wrong")
+    dip_values = surveys.values("dip")
+    surveys.add(rising_survey, "dip", "warning",
+                lambda rows: [sentence.format(v=dip_values[r], c=convention) for r in rows])
+    collar_dips = collars.values("dip") if "dip" in collars.frame else np.zeros(len(collars.lines))
+    collars.add(rising_collar, "dip", "warning",
+                lambda rows: [sentence.format(v=collar_dips[r], c=convention) for r in rows])
+    known = np.isfinite(first_dip)
+    rising = int((sign * first_dip[known] > 0).sum())
+    if known.sum() == 0 or rising <= known.sum() / 2:
+        return []
+    other = "positive-down" if dip_convention == "negative-down" else "negative-down"
+    text = (f"{rising} of {int(known.sum())} holes would be drilled upward from their collars with "
+            f"--dip-convention {dip_convention} (dips {convention} downward). If the dips of these tables are "
+            f"{'positive' if sign > 0 else 'negative'} downward, give --dip-convention {other}.")
+    collars.findings.add("surveys", None, "", surveys.columns.get("dip", "dip"), "warning", text)
+    return [text]
 
 
 def _dogleg_warnings(surveys: _View, order, dip_convention):
@@ -940,7 +1119,7 @@ def _dogleg_warnings(surveys: _View, order, dip_convention):
 
     if len(order) < 2:
         return
-    at = surveys.values("at")[order]
+    at = surveys.values("survey_depth")[order]
     t = direction_vectors(surveys.values("azimuth")[order], surveys.values("dip")[order], dip_convention)
     code = surveys.code[order]
     same = code[1:] == code[:-1]
@@ -953,9 +1132,16 @@ def _dogleg_warnings(surveys: _View, order, dip_convention):
     mask[order[1:][bad]] = True
     previous = dict(zip(order[1:][bad], surveys.lines[order[:-1][bad]]))
     bend = dict(zip(order[1:][bad], zip(dogleg[bad], severity[bad])))
-    surveys.add(mask, "azimuth", "warning", lambda rows: [
-        f"the hole bends {bend[r][0]:.1f} degrees from the station at line {previous[r]} "
-        f"({bend[r][1]:.1f} degrees per 30 m); check both rows for a mistyped angle" for r in rows])
+    step = dict(zip(order[1:][bad], np.diff(at)[bad]))
+
+    def sentence(r):
+        if step[r] < SHORT_SURVEY_STEP_M:  # a rate per 30 m means nothing over a few centimetres
+            return (f"the hole bends {bend[r][0]:.1f} degrees from the station at line {previous[r]}, only "
+                    f"{step[r]:.3g} m above it; check both rows for a mistyped depth or angle")
+        return (f"the hole bends {bend[r][0]:.1f} degrees from the station at line {previous[r]} "
+                f"({bend[r][1]:.1f} degrees per 30 m); check both rows for a mistyped angle")
+
+    surveys.add(mask, "azimuth", "warning", lambda rows: [sentence(r) for r in rows])
 
 
 def _overlap_errors(intervals: _View, good, d_from, d_to):

@@ -200,6 +200,22 @@ class Plan:
             self.max_distance_m = min(self.max_distance_m, float(sets.max_distance_m))
 
 
+def require_variation(values, what: str, least: int = 2) -> None:
+    """Refuse (TableError) values that cannot make a variogram: fewer than ``least`` finite values, or
+    values that do not vary beyond round-off (a range below 1e-9 of their magnitude: compositing a
+    constant leaves differences of about 1e-16, which would be fitted as a model)."""
+    from .errors import TableError
+
+    v = np.asarray(values, dtype=np.float64)
+    v = v[np.isfinite(v)]
+    if len(v) < least:
+        raise TableError(f"{what}: {len(v)} value(s) present; a variogram needs at least {least}.")
+    spread = float(v.max() - v.min())
+    if not spread > 1e-9 * float(np.abs(v).max()):
+        raise TableError(f"{what}: every value is {float(np.median(v)):.6g} (to round-off): the values do not vary, "
+                         "so there is no variogram to compute. Check the column and the domain chosen.")
+
+
 # --------------------------------------------------------------------------------------------
 # transforms
 # --------------------------------------------------------------------------------------------

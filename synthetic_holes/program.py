@@ -187,7 +187,7 @@ def generate_program(spec: ProgramSpec | None = None, seed: int = 0) -> Program:
     trace = Desurvey().fit(
         collars.rename(columns={"hole_id": "hole", "east": "x", "north": "y", "elevation": "z",
                                 "max_depth": "depth"}),
-        surveys.rename(columns={"hole_id": "hole", "depth": "at"}),
+        surveys.rename(columns={"hole_id": "hole", "depth": "survey_depth"}),
     )
     holes = intervals["hole_id"].to_numpy()
     top = trace.positions(holes, intervals["from"].to_numpy())

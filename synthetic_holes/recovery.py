@@ -31,7 +31,7 @@ def composites_of(program, length_m: float = 2.0, value: str = "au_gpt"):
     """Desurvey and composite a generated program; arrays (xyz, values, hole, depth) and the frame."""
     collars = program.collars.rename(columns={"hole_id": "hole", "east": "x", "north": "y", "elevation": "z",
                                               "max_depth": "depth"})
-    trace = Desurvey().fit(collars, program.surveys.rename(columns={"hole_id": "hole", "depth": "at"}))
+    trace = Desurvey().fit(collars, program.surveys.rename(columns={"hole_id": "hole", "depth": "survey_depth"}))
     intervals = program.intervals.rename(columns={"hole_id": "hole"})[["hole", "from", "to", value]]
     result = composite(intervals, [value], CompositeOptions(length_m=length_m), trace)
     c = result.composites.dropna(subset=[value])

@@ -13,6 +13,7 @@ is chosen before VTK starts unless ``VTK_DEFAULT_OPENGL_WINDOW`` says otherwise.
 
 from __future__ import annotations
 
+import contextlib
 import ctypes.util
 import dataclasses
 import math
@@ -408,11 +409,35 @@ def export_html(scene: Scene, path, units: str = ""):
     import contextlib
     import io
 
-    with contextlib.redirect_stdout(io.StringIO()):  # the exporter prints where it looked for a bundle
+    with contextlib.redirect_stdout(io.StringIO()), _loopback_server():  # they print where they looked for a bundle
         plotter.trame.export_html(str(path))
     plotter.close()
     _no_network(Path(path))
     return Path(path)
+
+
+@contextlib.contextmanager
+def _loopback_server():
+    """The local trame server that the exporter needs, started here bound to 127.0.0.1 (left to
+    itself it follows TRAME_DEFAULT_HOST, which may say 0.0.0.0: every network) and stopped when
+    the export is done."""
+    import asyncio
+
+    import pyvista as pv
+    from trame_pyvista.jupyter import elegantly_launch
+    from trame_pyvista.widgets import get_server
+
+    name = pv.global_theme.trame.jupyter_server_name
+    server = get_server(name)
+    started = False
+    if not server.running:
+        elegantly_launch(name, host="127.0.0.1")
+        started = True
+    try:
+        yield server
+    finally:
+        if started:
+            asyncio.run(server.stop())
 
 
 # vtk.js adds five favicon links to its page, each a request to the network: point them at nothing
@@ -426,11 +451,18 @@ def _no_network(path: Path) -> None:
 
 
 def write_vtm(scene: Scene, path):
+    """``scene.vtm`` and its blocks (``scene/*.vtp``, ``.vtu``...), whole or not at all: written into a
+    temporary folder beside them, then the blocks' folder moved into place and the index last, so
+    that a kill leaves no half-written block and no index pointing at missing ones."""
     import pyvista as pv
 
+    from engine.outputs import atomic_folder
+
+    path = Path(path)
     blocks = pv.MultiBlock({name: data for name, data in scene.blocks.items()})
-    blocks.save(str(path))
-    return Path(path)
+    with atomic_folder(path) as temporary:
+        blocks.save(str(temporary / path.name))
+    return path
 
 
 def show(scene: Scene, units: str = ""):

@@ -1,5 +1,6 @@
 """The command line: exit codes, outputs, and hostile files (never a traceback)."""
 
+import json
 import os
 import subprocess
 import sys
@@ -149,8 +150,11 @@ def test_hostile_collar_values_and_unicode_ids(write_tables, tmp_path, capsys):
     assert code == 1 and "Traceback" not in err
     findings = pd.read_csv(tmp_path / "findings.csv")
     assert set(findings["hole"]) == {"孔-001", "Ünter Tal"}
+    # both collars are in error: with --skip-bad-rows nothing is left, which is an error, not a success
     code, out, err = run(["desurvey", *table_args(paths), "--out", tmp_path / "d", "--skip-bad-rows"], capsys)
-    assert code == 0, err
+    assert code == 1 and "no collar row is left" in err
+    rejected = pd.read_csv(tmp_path / "d" / "rejected.csv")
+    assert len(rejected) == 6  # every input row, each with its reason
 
 
 def test_unicode_ids_clean_run(write_tables, tmp_path, capsys):
@@ -172,6 +176,7 @@ def test_console_script_in_a_subprocess_never_shows_a_traceback(write_tables, tm
     assert "Traceback" not in result.stderr and "not a text table" in result.stderr
 
 
+@pytest.mark.slow
 def test_demo_runs(tmp_path, capsys):
     code, out, err = run(["demo", "--out", tmp_path, "--seed", "3"], capsys)
     assert code == 0, err
@@ -240,7 +245,8 @@ def test_composite_end_to_end_on_a_synthetic_program(tmp_path, capsys):
     assert code == 1 and "--density-default" in err
 
 
-def test_variogram_command(tmp_path, capsys):
+def small_composites(path):
+    """600 composites of 20 vertical holes with a domain column, written to ``path``."""
     rng = np.random.default_rng(3)
     n = 600
     frame = pd.DataFrame({"hole": np.repeat([f"H{i}" for i in range(20)], 30),
@@ -248,8 +254,12 @@ def test_variogram_command(tmp_path, capsys):
                           "x": np.repeat(rng.uniform(0, 200, 20), 30), "y": np.repeat(rng.uniform(0, 200, 20), 30),
                           "z": -np.tile(np.arange(30) * 2.0 + 1, 20), "au": rng.lognormal(size=n),
                           "domain": np.where(rng.uniform(size=n) < 0.7, "FRESH", "OXIDE")})
-    path = tmp_path / "composites.csv"
     frame.to_csv(path, index=False)
+    return path
+
+
+def test_variogram_command(tmp_path, capsys):
+    path = small_composites(tmp_path / "composites.csv")
     code, out, err = run(["variogram", "--composites", path, "--value", "au", "--out", tmp_path / "v",
                           "--lag", "10", "--lags", "8", "--domain", "domain=FRESH"], capsys)
     assert code == 0, err
@@ -269,18 +279,26 @@ def test_variogram_command(tmp_path, capsys):
     fans = pd.read_csv(tmp_path / "f" / "variograms.csv")
     assert len(fans) == 9 * 10  # 6 + 3 directions of 10 lags (both fans hold the line 0/0)
     assert sorted(fans[fans.plunge == 0]["trend"].unique().tolist())[:3] == [0.0, 30.0, 60.0]
-    pytest.importorskip("distributed")
-    code, _, err = run(["variogram", "--composites", path, "--value", "au", "--out", tmp_path / "dask", "--lag", "10",
-                        "--directions", "0/0,90/0", "--transform", "normal-score", "--dask", "local:2"], capsys)
-    assert code == 0, err
-    on_dask = pd.read_csv(tmp_path / "dask" / "variograms.csv")
-    assert on_dask["pairs"].tolist() == table["pairs"].tolist()
-    assert np.allclose(on_dask["gamma"], table["gamma"], rtol=1e-9, equal_nan=True)
     code, _, err = run(["variogram", "--composites", path, "--value", "cu", "--out", tmp_path / "x"], capsys)
-    assert code == 1 and "'cu'" in err
+    assert code == 2 and "'cu'" in err and "au" in err  # an unknown column is bad usage, listing the columns
     code, _, err = run(["variogram", "--composites", path, "--value", "au", "--directions", "north",
                         "--out", tmp_path / "y"], capsys)
-    assert code == 2 and "trend/plunge" in err
+    assert code == 2 and "TREND/PLUNGE" in err
+
+
+def test_variogram_command_on_dask_equals_the_local_run(tmp_path, capsys):
+    pytest.importorskip("distributed")  # in the test extra: present wherever the README's install ran
+    path = small_composites(tmp_path / "composites.csv")
+    common = ["variogram", "--composites", path, "--value", "au", "--lag", "10", "--directions", "0/0,90/0",
+              "--transform", "normal-score"]
+    code, _, err = run([*common, "--out", tmp_path / "local"], capsys)
+    assert code == 0, err
+    code, _, err = run([*common, "--out", tmp_path / "dask", "--dask", "local:2"], capsys)
+    assert code == 0, err
+    local = pd.read_csv(tmp_path / "local" / "variograms.csv")
+    on_dask = pd.read_csv(tmp_path / "dask" / "variograms.csv")
+    assert on_dask["pairs"].tolist() == local["pairs"].tolist()
+    assert np.allclose(on_dask["gamma"], local["gamma"], rtol=1e-9, equal_nan=True)
 
 
 def test_hole_numbers_of_composites_match_their_names_when_a_hole_has_no_position():
@@ -291,6 +309,34 @@ def test_hole_numbers_of_composites_match_their_names_when_a_hole_has_no_positio
 
     frame = pd.DataFrame({"hole": ["A", "A", "B", "B", "C"], "x": [0.0, 0, np.nan, np.nan, 5],
                           "y": [0.0, 0, 0, 0, 0], "z": [0.0, -1, 0, -1, 0], "au": [1.0, 2, 3, 4, 5]})
-    xyz, values, hole, *_, rows = _composites_arrays(frame, "au", None, with_rows=True)
-    names = pd.factorize(rows["hole"])[1]
-    assert list(names[hole]) == ["A", "A", "C"] and list(values) == [1.0, 2.0, 5.0]
+    data = _composites_arrays(frame, "au", None)
+    assert list(data.hole_names[data.hole]) == ["A", "A", "C"] and list(data.values) == [1.0, 2.0, 5.0]
+    assert data.unplaced == 2
+
+
+def test_run_takes_the_domain_column_as_the_input_spells_it(tmp_path, capsys):
+    # the domain column is called Zone in the intervals; --domain names it so (here in other case),
+    # also after compositing, in run and in the commands that read composites.csv
+    from synthetic_holes import generate_program
+    from synthetic_holes.recovery import recovery_spec
+
+    program = generate_program(recovery_spec(n_along=6, n_lines=5, hole_length_m=120.0), seed=2)
+    program.intervals = program.intervals.rename(columns={"domain": "Zone"})
+    paths = program.write(tmp_path / "data")
+    out = tmp_path / "run"
+    code, stdout, err = run(["run", *table_args(paths), "--value", "AU_GPT", "--domain", "zone=FRESH",
+                             "--bootstrap", "0", "--pairs-axis", "none", "--size", "400", "300", "--out", out], capsys)
+    assert code == 0, err
+    model = json.loads((out / "model.json").read_text())
+    assert model["domain"] == "Zone=FRESH" and model["variable"] == "au_gpt"
+    composites = pd.read_csv(out / "composites.csv")
+    assert {"domain", "Zone"} <= set(composites.columns) and (composites["domain"] == composites["Zone"]).all()
+    code, _, err = run(["stationarity", "--composites", out / "composites.csv", "--value", "au_gpt",
+                        "--domain", "Zone=FRESH", "--out", tmp_path / "st"], capsys)
+    assert code == 0, err
+    st = json.loads((tmp_path / "st" / "stationarity.json").read_text())
+    assert st["summary"]["count"] == int(((composites["Zone"] == "FRESH") & composites["au_gpt"].notna()).sum())
+    code, _, err = run(["run", *table_args(paths), "--value", "au_gpt", "--domain", "Zone=fresh", "--bootstrap", "0",
+                        "--out", tmp_path / "wrong"], capsys)
+    assert code == 2 and "did you mean 'FRESH'" in err and "the intervals table" in err
+    assert not (tmp_path / "wrong" / "composites.csv").exists()  # refused before compositing

@@ -17,7 +17,7 @@ def one_hole(stations, depth=None, x=0.0, y=0.0, z=0.0, hole="A"):
     """Collar and survey frames for one hole; stations = [(depth, azimuth, dip), ...]."""
     at = [s[0] for s in stations]
     collars = pd.DataFrame({"hole": [hole], "x": [x], "y": [y], "z": [z], "depth": [depth or max(at)]})
-    surveys = pd.DataFrame({"hole": hole, "at": at, "azimuth": [s[1] for s in stations],
+    surveys = pd.DataFrame({"hole": hole, "survey_depth": at, "azimuth": [s[1] for s in stations],
                             "dip": [s[2] for s in stations]})
     return collars, surveys
 
@@ -160,7 +160,7 @@ def curving_program(rng, n_holes=30):
         collars.append((f"H{h}", *rng.uniform(-1000, 1000, 3), 320.0))
         surveys += [(f"H{h}", a, b, c) for a, b, c in zip(at, az, dip)]
     collars = pd.DataFrame(collars, columns=["hole", "x", "y", "z", "depth"])
-    surveys = pd.DataFrame(surveys, columns=["hole", "at", "azimuth", "dip"])
+    surveys = pd.DataFrame(surveys, columns=["hole", "survey_depth", "azimuth", "dip"])
     return collars, surveys
 
 
@@ -172,12 +172,12 @@ def test_curving_holes_equal_slow_reference(method):
     surveys = surveys.sample(frac=1.0, random_state=3).reset_index(drop=True)
     trace = Desurvey(method).fit(collars, surveys)
     for h, row in enumerate(collars.itertuples()):
-        part = surveys[surveys.hole == row.hole].sort_values("at")
-        expected = desurvey_hole((row.x, row.y, row.z), list(zip(part["at"], part["azimuth"], part["dip"])), method)
+        part = surveys[surveys.hole == row.hole].sort_values("survey_depth")
+        expected = desurvey_hole((row.x, row.y, row.z), list(zip(part["survey_depth"], part["azimuth"], part["dip"])), method)
         got = trace.xyz_[trace.start_[h]:trace.start_[h + 1]]
         assert np.allclose(got, expected, atol=1e-8, rtol=0)
         # the fitted positions at the station depths are the station positions
-        assert np.allclose(trace.positions([h] * len(part), part["at"].to_numpy()), expected, atol=1e-8)
+        assert np.allclose(trace.positions([h] * len(part), part["survey_depth"].to_numpy()), expected, atol=1e-8)
 
 
 @pytest.mark.parametrize("method", METHODS)
@@ -218,7 +218,7 @@ def test_beyond_last_and_above_first_station():
 def test_hole_without_surveys_uses_collar_angles_else_vertical():
     collars = pd.DataFrame({"hole": ["A", "B"], "x": [0.0, 0.0], "y": [0.0, 0.0], "z": [0.0, 0.0],
                             "depth": [10.0, 10.0], "azimuth": [90.0, np.nan], "dip": [-60.0, np.nan]})
-    surveys = pd.DataFrame({"hole": [], "at": [], "azimuth": [], "dip": []})
+    surveys = pd.DataFrame({"hole": [], "survey_depth": [], "azimuth": [], "dip": []})
     p = Desurvey().fit(collars, surveys).positions(["A", "B"], [10.0, 10.0])
     assert np.allclose(p[0], 10 * direction_vectors([90.0], [-60.0])[0])
     assert np.allclose(p[1], [0, 0, -10])
@@ -238,7 +238,7 @@ def test_kernel_body_runs_with_jit_disabled():
         "import pandas as pd, numpy as np\n"
         "from engine.desurvey import Desurvey\n"
         "c = pd.DataFrame({'hole': ['A'], 'x': [0.0], 'y': [0.0], 'z': [0.0], 'depth': [3600.0]})\n"
-        "s = pd.DataFrame({'hole': ['A', 'A'], 'at': [3500.0, 3600.0], 'azimuth': [20.0, 45.0], 'dip': [-75.0, -65.0]})\n"
+        "s = pd.DataFrame({'hole': ['A', 'A'], 'survey_depth': [3500.0, 3600.0], 'azimuth': [20.0, 45.0], 'dip': [-75.0, -65.0]})\n"
         "t = Desurvey().fit(c, s)\n"
         "d = t.xyz_[1] - t.xyz_[0]\n"
         "p = t.positions(['A'], [3550.0])[0]\n"

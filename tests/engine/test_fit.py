@@ -40,6 +40,7 @@ def test_search_directions_cover_the_hemisphere():
     assert np.abs(fan @ np.array([0.3, 0.4, -0.866]) / np.linalg.norm([0.3, 0.4, -0.866])).max() < 1e-12
 
 
+@pytest.mark.slow
 def test_recovery_of_an_oblique_anisotropic_truth(recoveries):
     # known truth (synthetic_holes.recovery): inclined holes on a rotated grid, major / minor 4.8,
     # an oblique rotation. Tolerances from the issue: axes within 10 degrees and ranges (the
@@ -62,6 +63,7 @@ def test_recovery_of_an_oblique_anisotropic_truth(recoveries):
     assert nugget_ok >= 7, "\n".join(lines)
 
 
+@pytest.mark.slow
 def test_bootstrap_intervals_contain_the_truth_in_most_seeds(recoveries):
     # an axis interval holds the truth when the fitted axis is within the angle that 95% of the
     # replicate axes keep to (major and minor together); a range interval (2.5-97.5%) when it holds
@@ -85,6 +87,7 @@ def test_bootstrap_intervals_contain_the_truth_in_most_seeds(recoveries):
     assert (ranges_held >= 6).all(), (ranges_held, "\n".join(lines))
 
 
+@pytest.mark.slow
 def test_fitted_models_are_valid_and_right_handed(recoveries):
     for result, _, _ in recoveries:
         m = result.model
@@ -94,6 +97,7 @@ def test_fitted_models_are_valid_and_right_handed(recoveries):
             assert s.ranges_m[0] >= s.ranges_m[1] >= s.ranges_m[2] > 0 and s.sill >= 0
 
 
+@pytest.mark.slow
 def test_pattern_check_flags_a_planted_artifact():
     # an isotropic field drilled on lines with holes 20 m apart along them and 80 m between them:
     # if the fit comes out strongly anisotropic, a warning must say the pattern may have made it
@@ -117,6 +121,7 @@ def test_pattern_check_flags_a_planted_artifact():
     assert flagged_or_isotropic == 3
 
 
+@pytest.mark.slow
 def test_fit_command_writes_model_and_pattern(tmp_path):
     program = generate_program(recovery_spec(n_along=8, n_lines=6, hole_length_m=150.0), seed=4)
     paths = program.write(tmp_path / "data")

@@ -108,6 +108,7 @@ def test_trend_in_a_synthetic_program_is_flagged_along_east():
     assert not trend_check(xyz, residual)["flag"]
 
 
+@pytest.mark.slow
 def test_correlation_aware_slope_test_against_naive_regression(stationary_runs):
     # common practice: regression p-values on spatially correlated samples raise false alarms.
     # On the 10 stationary fields, count axes with p below alpha / 3 by each test.
@@ -212,6 +213,7 @@ def test_mixture_em_recovers_known_components():
 # ---------------------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_false_alarms_on_stationary_gaussian_fields(stationary_runs):
     # 10 stationary Gaussian fields (one spherical structure, no trend, one population)
     counts = {name: 0 for name in ("trend", "proportional_effect", "mixture", "sill", "halves")}
@@ -222,6 +224,7 @@ def test_false_alarms_on_stationary_gaussian_fields(stationary_runs):
     assert max(counts.values()) <= 1 and sum(counts.values()) <= 2
 
 
+@pytest.mark.slow
 def test_halves_of_a_stationary_field_are_similar(stationary_runs):
     for *_, report in stationary_runs:
         h = report["checks"]["halves"]
@@ -230,6 +233,7 @@ def test_halves_of_a_stationary_field_are_similar(stationary_runs):
         assert h["halves"][0]["count"] + h["halves"][1]["count"] == report["checks"]["sill"]["composites_used"]
 
 
+@pytest.mark.slow
 def test_the_sill_test_on_stationary_fields_and_with_a_trend(stationary_runs):
     for *_, report in stationary_runs:
         omni = report["checks"]["sill"]["sets"][0]
@@ -249,6 +253,7 @@ def test_diagnose_refuses_too_few_values():
 # ---------------------------------------------------------------------------------------------
 
 
+@pytest.mark.slow
 def test_stationarity_command_with_detrending_and_model_axes(tmp_path):
     import json
     import subprocess

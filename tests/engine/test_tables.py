@@ -75,23 +75,33 @@ def test_synonyms_are_matched_ignoring_case_and_separators(write_tables):
     assert tables.error_count == 0, tables.findings.to_string()
     assert tables.columns["collars"] == {"hole": "Hole_ID", "x": "EASTING", "y": "North ing",
                                          "z": "R.L.", "depth": "Max-Depth"}
-    assert tables.columns["surveys"]["at"] == "MD"
+    assert tables.columns["surveys"]["survey_depth"] == "MD"
     assert tables.columns["intervals"]["from"] == "Depth From"
 
 
 def test_explicit_column_option(write_tables):
-    collars = "BHID,XC,YC,ZC,TD\nA,1,2,3,30\n"
-    surveys = "BHID,AT,BRG,DIP\nA,0,10,-60\n"
-    intervals = "BHID,FROM,TO,au\nA,0,1,0.2\n"
-    explicit = parse_column_options(["hole=BHID", "x=XC", "y=YC", "z=ZC", "depth=TD", "azimuth=BRG"])
+    collars = "SITE,E_LOCAL,N_LOCAL,Z_LOCAL,DEPTH_END\nA,1,2,3,30\n"
+    surveys = "SITE,DOWN,HEADING,DIP\nA,0,10,-60\n"
+    intervals = "SITE,FROM,TO,au\nA,0,1,0.2\n"
+    explicit = parse_column_options(["hole=SITE", "x=E_LOCAL", "y=N_LOCAL", "z=Z_LOCAL", "depth=DEPTH_END",
+                                     "survey_depth=DOWN", "azimuth=HEADING"])
     tables = read(write_tables(collars, surveys, intervals), columns=explicit)
     assert tables.error_count == 0
     assert tables.collars["x"].tolist() == [1.0]
+    assert tables.columns["surveys"] == {"hole": "SITE", "survey_depth": "DOWN", "azimuth": "HEADING", "dip": "DIP"}
+
+
+def test_the_old_survey_depth_role_name_still_works_with_a_note(write_tables):
+    notes = []
+    explicit = parse_column_options(["at=DOWN"], notes)
+    assert explicit == {"survey_depth": "DOWN"} and "survey_depth" in notes[0]
+    tables = read(write_tables(surveys="hole,DOWN,azimuth,dip\nA,0,90,-60\nB,0,0,-90\n"), columns=explicit)
+    assert tables.error_count == 0 and tables.columns["surveys"]["survey_depth"] == "DOWN"
 
 
 def test_explicit_column_that_no_table_holds_is_an_error(write_tables):
-    with pytest.raises(TableError, match="BHID"):
-        read(write_tables(), columns={"hole": "BHID"})
+    with pytest.raises(TableError, match="SITE"):
+        read(write_tables(), columns={"hole": "SITE"})
     with pytest.raises(UsageError):
         parse_column_options(["colour=red"])
     with pytest.raises(UsageError):
@@ -172,4 +182,4 @@ def test_match_columns_direct(tmp_path):
     path = tmp_path / "s.csv"
     path.write_text("Hole,At,Azimuth,Dip\nA,0,0,-90\n")
     raw = read_raw_table(path, "surveys")
-    assert match_columns(raw) == {"hole": "Hole", "at": "At", "azimuth": "Azimuth", "dip": "Dip"}
+    assert match_columns(raw) == {"hole": "Hole", "survey_depth": "At", "azimuth": "Azimuth", "dip": "Dip"}

@@ -1,9 +1,11 @@
 """One test per validation rule: a small table that breaks it, and the finding's table, line, hole and
 severity. The rules are common practice of drillhole database validation."""
 
+import numpy as np
 import pandas as pd
 import pytest
 
+from engine.desurvey import Desurvey
 from engine.errors import ValidationError
 from engine.tables import read_tables
 
@@ -86,11 +88,22 @@ def test_survey_past_end_of_hole_is_a_warning(write_tables):
     assert (line, hole) == (5, "B") and "past the end of the hole (20 m)" in problem
 
 
-@pytest.mark.parametrize("azimuth", ["360", "-1", "361.5"])
+@pytest.mark.parametrize("azimuth", ["360.5", "-1", "361.5"])
 def test_survey_azimuth_outside_0_360(write_tables, azimuth):
     surveys = GOOD_SURVEYS.replace("A,25,92,-59", f"A,25,{azimuth},-59")
     line, hole, column, _ = only_finding(read(write_tables(surveys=surveys)), "surveys", "error")
     assert (line, hole, column) == (3, "A", "azimuth")
+
+
+def test_azimuth_360_is_north(write_tables):
+    # common practice: survey exports write north as 360; it is the same bearing as 0
+    surveys = "hole,depth,azimuth,dip\nA,0,360,-60\nA,25,360,-60\nB,0,0,-90\n"
+    tables = read(write_tables(surveys=surveys))
+    assert tables.error_count == 0, tables.findings.to_string()
+    north = read(write_tables(surveys=surveys.replace("360", "0")))
+    a = Desurvey().fit(tables.collars, tables.surveys).positions(["A"], [25.0])
+    b = Desurvey().fit(north.collars, north.surveys).positions(["A"], [25.0])
+    assert np.allclose(a, b, atol=1e-9) and a[0, 1] > 200  # the hole heads north of its collar
 
 
 @pytest.mark.parametrize("dip", ["-91", "90.5"])
@@ -266,3 +279,46 @@ def test_computing_refuses_errors_unless_bad_rows_are_skipped(write_tables):
     # survey rows of the dropped collar lines go too, with a reason each
     assert rejected["reason"].map(bool).all()
     assert clean.error_count == tables.error_count  # the findings stay as found
+
+
+# ---- holes that would be placed by a guess
+
+def test_a_hole_whose_every_survey_row_is_in_error_is_left_out_when_its_collar_has_no_angles(write_tables):
+    # common practice: a hole with no usable survey and no collar orientation has an unknown path; it
+    # must not be drilled vertical by default
+    surveys = GOOD_SURVEYS.replace("A,0,90,-60", "A,0,east,-60").replace("A,25,92,-59", "A,25,92,down")
+    tables = read(write_tables(surveys=surveys))
+    line, hole, column, problem = only_finding(tables, "collars", "error")
+    assert (line, hole, column) == (2, "A", "hole") and "path is unknown" in problem and "lines 2, 3" in problem
+    clean, rejected = tables.usable(skip_bad_rows=True)
+    assert list(clean.collars["hole"]) == ["B"] and set(clean.intervals["hole"]) == {"B"}
+    lost = rejected[(rejected.table == "intervals")]
+    assert len(lost) == 3 and lost["reason"].str.contains("path is unknown").all()
+    assert len(rejected) + len(clean.collars) + len(clean.surveys) + len(clean.intervals) == 2 + 3 + 4
+
+
+def test_a_hole_whose_every_survey_row_is_in_error_follows_its_collar_angles(write_tables):
+    collars = "hole,x,y,z,depth,azimuth,dip\nA,100,200,50,30,90,-60\nB,110,200,50,20,0,-90\n"
+    surveys = GOOD_SURVEYS.replace("A,0,90,-60", "A,0,east,-60").replace("A,25,92,-59", "A,25,92,down")
+    tables = read(write_tables(collars=collars, surveys=surveys))
+    line, hole, column, problem = only_finding(tables, "collars", "warning")
+    assert (line, hole) == (2, "A") and "follows its collar azimuth and dip" in problem
+    clean, rejected = tables.usable(skip_bad_rows=True)
+    assert set(rejected["table"]) == {"surveys"} and list(clean.collars["hole"]) == ["A", "B"]
+    trace = Desurvey().fit(clean.collars, clean.surveys)
+    # analytic: 20 m down a straight hole at azimuth 90, dip -60 from (100, 200, 50)
+    assert np.allclose(trace.positions(["A"], [20.0])[0], [100 + 10.0, 200, 50 - 20 * np.sqrt(3) / 2], atol=1e-9)
+
+
+def test_holes_that_rise_are_warned_about_and_most_rising_names_the_dip_convention(write_tables):
+    # dips written positive downward read with the default convention: every hole would rise
+    surveys = "hole,depth,azimuth,dip\nA,0,90,60\nA,25,92,59\nB,0,0,90\n"
+    tables = read(write_tables(surveys=surveys))
+    rising = findings_of(tables, "surveys", "warning")
+    assert set(rising["hole"]) == {"A", "B", ""} and rising["problem"].str.contains("upward").all()
+    assert len(tables.notices) == 1 and "--dip-convention positive-down" in tables.notices[0]
+    assert "2 of 2 holes" in tables.notices[0]
+    right = read(write_tables(surveys=surveys), dip_convention="positive-down")
+    assert right.notices == [] and len(findings_of(right, severity="warning")) == 0
+    one = read(write_tables(surveys="hole,depth,azimuth,dip\nA,0,90,-60\nA,25,92,-59\nB,0,0,45\n"))
+    assert one.notices == [] and findings_of(one, "surveys", "warning")["hole"].tolist() == ["B"]

@@ -9,6 +9,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from engine.errors import UsageError
 from engine.pairs import PairIndex
 from engine.pairs import _kernels as k
 from engine.variogram import (Direction, LagBins, Sets, VolumeGrid, accumulate, experimental_variograms,
@@ -130,30 +131,25 @@ def test_direction_lookup_lists_every_set_that_can_take_a_pair():
 
 def test_hole_weights_equal_a_weighted_double_loop():
     # the hole-wise bootstrap's weights: a pair of two holes counts w_a w_b, a pair within a hole w_a;
-    # a weight of zero is the same as leaving the hole out
+    # a weight of zero is the same as leaving the hole out (slow obvious reference: tests/reference)
     rng = np.random.default_rng(5)
     xyz, hole, depth, values = holes_program(rng)
     w_hole = np.array([2.0, 0.0, 1.0, 3.0, 1.0, 2.0])
     weights = w_hole[hole]
     sets = Sets(omni=LagBins(4.0, 8), downhole=LagBins(2.0, 8))
     acc = accumulate(xyz, values, sets, hole=hole, depth=depth, weights=weights)
-    omni = acc.stats(0)[acc.plan.layout[k.L_OMNI_SLOT]:][:9]
-    want_n, want_sq = np.zeros(9), np.zeros(9)
-    for i in range(len(xyz)):
-        for j in range(i + 1, len(xyz)):
-            if np.isnan(values[i]) or np.isnan(values[j]):
-                continue
-            d = np.linalg.norm(xyz[j] - xyz[i])  # some pairs lie at exactly the 34 m reach
-            kk = int(math.ceil((d - 2.0) / 4.0)) if d > 2.0 else 0
-            if kk > 0 and (kk - 1) * 4.0 + 2.0 >= d:
-                kk -= 1
-            if kk > 8:
-                continue
-            w = weights[i] if hole[i] == hole[j] else weights[i] * weights[j]
-            want_n[kk] += w
-            want_sq[kk] += w * (values[i] - values[j]) ** 2
-    assert np.allclose(omni[:, k.COUNT], want_n, rtol=0, atol=1e-12)
-    assert np.allclose(omni[:, k.SUM_SQ], want_sq, rtol=1e-12, atol=1e-10)
+    want = reference_sums(xyz, values, hole, depth, sets, weights=weights)
+    checked = 0
+    for key, row in want.items():
+        got = engine_sums(acc, key, sets)
+        assert got[k.COUNT] == pytest.approx(row["count"], abs=1e-12), key
+        assert got[k.SUM_SQ] == pytest.approx(row["sum_sq"], rel=1e-12, abs=1e-10), key
+        checked += row["count"] > 0
+    assert checked > 10
+    for name in ("omni", "downhole"):  # and nothing the reference did not find
+        first = acc.plan.layout[k.L_OMNI_SLOT if name == "omni" else k.L_DH_SLOT]
+        total = acc.stats(0)[first:first + 9, k.COUNT].sum()
+        assert total == pytest.approx(sum(r["count"] for key, r in want.items() if key[0] == name), abs=1e-9)
     keep = hole != 1
     left_out = accumulate(xyz[keep], values[keep], sets, hole=hole[keep], depth=depth[keep], weights=weights[keep])
     assert np.allclose(acc.sums, left_out.sums, rtol=1e-12, atol=1e-10)
@@ -293,8 +289,7 @@ def test_matplotlib_elevation_grid_against_numpy():
     yy, xx = np.mgrid[0:ny, 0:nx]
     xyz = np.c_[xx.ravel() * 1.0, yy.ravel() * 1.0, np.zeros(xx.size)]
     z = elevation.ravel()
-    sets = Sets(directions=[Direction(90, 0, 1e-6), Direction(0, 0, 1e-6), Direction(45, 0, 1e-6)],
-                directional_bins=LagBins(1.0, 6, 0.05))
+    sets = Sets(directions=[Direction(90, 0, 1e-6), Direction(0, 0, 1e-6)], directional_bins=LagBins(1.0, 6, 0.05))
     t = variogram_table(accumulate(xyz, z, sets))
     for direction, (sx, sy) in (("90/0", (1, 0)), ("0/0", (0, 1))):
         got = t[t.direction == direction]
@@ -303,13 +298,15 @@ def test_matplotlib_elevation_grid_against_numpy():
             row = got[got.lag == lag].iloc[0]
             assert row["pairs"] == diff.size
             assert row["gamma"] == pytest.approx(0.5 * np.mean(diff**2), rel=1e-10)
-    diagonal = t[t.direction == "45/0"]
-    for step in range(1, 5):  # diagonal step s has length s sqrt(2): lags 1.41, 2.83, 4.24, 5.66
+    # the diagonal (north-east): step s is s sqrt(2) long, so its lags are multiples of sqrt(2)
+    diagonal = variogram_table(accumulate(xyz, z, Sets(directions=[Direction(45, 0, 1e-6)],
+                                                       directional_bins=LagBins(math.sqrt(2), 4, 0.05))))
+    assert len(diagonal) == 4
+    for step in range(1, 5):
         diff = elevation[step:, step:] - elevation[:-step, :-step]
-        lag = round(step * math.sqrt(2))
-        if abs(step * math.sqrt(2) - lag) <= 0.05:
-            row = diagonal[diagonal.lag == lag].iloc[0]
-            assert row["gamma"] == pytest.approx(0.5 * np.mean(diff**2), rel=1e-10)
+        row = diagonal.iloc[step - 1]
+        assert row["pairs"] == diff.size, step
+        assert row["gamma"] == pytest.approx(0.5 * np.mean(diff**2), rel=1e-10), step
 
 
 def test_measures_from_sums():
@@ -348,14 +345,36 @@ def test_cross_semivariogram_and_transforms():
     assert indicator(np.array([0.5, 2.0, np.nan]), 1.0).tolist()[:2] == [1.0, 0.0]
 
 
+def python_in_subprocess(code: str, **environment) -> str:
+    """Run ``code`` in a fresh interpreter with these environment variables; its standard output."""
+    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT,
+                            env=dict(os.environ, **environment))
+    assert result.returncode == 0, result.stderr
+    return result.stdout
+
+
 def test_pair_counts_identical_with_one_and_two_threads():
-    rng = np.random.default_rng(7)
-    xyz = rng.uniform(0, 300, (20000, 3)) * [1, 1, 0.2]
-    z = rng.normal(size=20000)
-    one = accumulate(xyz, z, ALL_SETS, threads=1)
-    two = accumulate(xyz, z, ALL_SETS, threads=2)
-    assert np.array_equal(one.sums[:, k.COUNT], two.sums[:, k.COUNT])
-    assert np.allclose(one.sums, two.sums, rtol=1e-10, atol=1e-9)  # sums in another order: round-off
+    # in a fresh interpreter allowed two threads whatever the machine has (numba clamps a thread count
+    # to NUMBA_NUM_THREADS, which follows the cores: on a one-core runner 2 would silently become 1)
+    code = (
+        "import numpy as np, numba\n"
+        "from engine._jit import threads\n"
+        "from engine.pairs import _kernels as k\n"
+        "from engine.variogram import accumulate\n"
+        "from tests.engine.test_variogram import ALL_SETS\n"
+        "rng = np.random.default_rng(7)\n"
+        "xyz = rng.uniform(0, 300, (20000, 3)) * [1, 1, 0.2]\n"
+        "z = rng.normal(size=20000)\n"
+        "with threads(2) as used:\n"
+        "    assert used == 2 and numba.get_num_threads() == 2, used\n"
+        "one = accumulate(xyz, z, ALL_SETS, threads=1)\n"
+        "two = accumulate(xyz, z, ALL_SETS, threads=2)\n"
+        "assert one.accepted > 1000000, one.accepted\n"
+        "assert np.array_equal(one.sums[:, k.COUNT], two.sums[:, k.COUNT])\n"
+        "assert np.allclose(one.sums, two.sums, rtol=1e-10, atol=1e-9)  # sums in another order: round-off\n"
+        "print('same')\n"
+    )
+    assert python_in_subprocess(code, NUMBA_NUM_THREADS="2").strip() == "same"
 
 
 def test_kernel_runs_with_jit_disabled():
@@ -368,10 +387,8 @@ def test_kernel_runs_with_jit_disabled():
         "t = experimental_variograms(xyz, g, s)\n"
         "print(' '.join(f'{v:.6f}' for v in t[t.set == 'omni']['gamma']))\n"
     )
-    env = dict(os.environ, NUMBA_DISABLE_JIT="1")
-    result = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, env=env, cwd=ROOT)
-    assert result.returncode == 0, result.stderr
-    assert result.stdout.split() == ["16.392857", "22.153846", "38.250000", "55.409091"]
+    assert python_in_subprocess(code, NUMBA_DISABLE_JIT="1").split() == ["16.392857", "22.153846", "38.250000",
+                                                                          "55.409091"]
 
 
 def test_index_is_reused_across_variables_and_sets():
@@ -382,7 +399,7 @@ def test_index_is_reused_across_variables_and_sets():
     b = accumulate(xyz, rng.normal(size=2000), Sets(directions=[Direction(0, 0)], directional_bins=LagBins(10, 5)),
                    index=index)
     assert a.accepted == b.accepted
-    with pytest.raises(Exception):
+    with pytest.raises(UsageError, match="beyond the index's search distance"):
         accumulate(xyz, np.zeros(2000), Sets(omni=LagBins(10, 10)), index=index)  # reaches beyond 60 m
 
 
@@ -426,7 +443,7 @@ def test_search_cap_empties_volume_corners_only():
     _, counts_capped = capped.volume(0)
     assert counts_capped.sum() < counts_full.sum()
     assert counts_capped[4, 4, 4 + 2] == counts_full[4, 4, 4 + 2]  # cells near zero keep every pair
-    with pytest.raises(Exception):
+    with pytest.raises(UsageError, match="search cap"):
         Sets(omni=LagBins(5.0, 4), max_distance_m=10.0).plan()
 
 

@@ -6,6 +6,7 @@ is flagged) and one hole renamed ``<b>X</b>`` with a survey row in error (so its
 findings, escaped).
 """
 
+import html
 import json
 import re
 import subprocess
@@ -20,6 +21,8 @@ from synthetic_holes.recovery import recovery_spec
 from tests.viewer.browsing import Proxy, browser_or_skip, non_blank
 from viewer.browser import screenshot
 from viewer.report import SECTIONS
+
+pytestmark = pytest.mark.slow  # every test here reads one whole run of the workflow
 
 ROOT = Path(__file__).resolve().parents[2]
 ODD_HOLE = "<b>X</b>"
@@ -44,7 +47,7 @@ def run(tmp_path_factory):
                "--bootstrap", "5", "--skip-bad-rows", "--out", str(out)]
     done = subprocess.run(command, capture_output=True, text=True, cwd=ROOT)
     assert done.returncode == 0, done.stderr
-    return out, done.stdout
+    return out, done.stdout + done.stderr
 
 
 def test_the_run_writes_the_report_and_the_stationarity_file(run):
@@ -70,6 +73,13 @@ def test_the_stationarity_warning_leads_model_json_the_console_and_the_report(ru
     lead = page.index("Read first:")
     assert lead < page.index('<section id="summary">')
     assert page.index("Stationarity: Trend in the mean along east", lead) < page.index("</ul>", lead)
+    # every warning the console printed is in model.json's warnings, and leads the report
+    printed = [re.split(r"WARNING(?: \(stationarity\))?: ", line, maxsplit=1)[1] for line in stdout.splitlines()
+               if "WARNING" in line]
+    assert printed
+    for text in printed:
+        assert any(w.endswith(text) for w in model["warnings"]), text
+        assert html.escape(text, quote=False)[:60] in page[lead:page.index('<section id="summary">')], text
 
 
 def test_the_report_is_self_contained_and_escapes_data_text(run):

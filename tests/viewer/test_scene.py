@@ -140,6 +140,7 @@ def test_vtm_holds_the_datasets(scene, tmp_path):
     assert blocks["ellipsoid"].n_points == scene.blocks["ellipsoid"].n_points
 
 
+@pytest.mark.slow
 def test_the_html_scene_renders_in_chromium_with_no_network_request(scene, tmp_path):
     browser_or_skip()
     page = sc.export_html(scene, tmp_path / "scene.html")
@@ -160,6 +161,7 @@ def test_the_html_scene_renders_in_chromium_with_no_network_request(scene, tmp_p
     assert drawn > 0.02, drawn  # the 3D content is drawn (a page with no WebGL content stays white)
 
 
+@pytest.mark.slow
 def test_view_command_writes_the_scene(tmp_path, data):
     _, _, _, _, frame, model_json, _, _ = data
     composites = tmp_path / "composites.csv"
@@ -177,3 +179,44 @@ def test_view_command_writes_the_scene(tmp_path, data):
     blocks = pv.read(out / "scene.vtm")  # an index of the pieces in scene/
     assert "traces" in blocks.keys() and blocks["traces"].n_cells > 0
     assert "pairs:" in done.stdout and "along direction 30/0" in done.stdout
+
+
+def test_vtm_is_written_whole_and_replaces_an_older_one(scene, tmp_path):
+    import pyvista as pv
+
+    (tmp_path / "scene").mkdir()
+    (tmp_path / "scene" / "scene_99.vtp").write_text("an older run's block")
+    (tmp_path / "scene.vtm").write_text("an older index")
+    sc.write_vtm(scene, tmp_path / "scene.vtm")
+    blocks = pv.read(tmp_path / "scene.vtm")
+    assert blocks["ellipsoid"].n_points == scene.blocks["ellipsoid"].n_points
+    assert not (tmp_path / "scene" / "scene_99.vtp").exists()  # the old pieces went with the old index
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["scene", "scene.vtm"]  # no temporary left
+
+
+def test_the_html_export_binds_its_server_to_loopback_and_stops_it(tmp_path):
+    # the exporter starts a local server; told TRAME_DEFAULT_HOST=0.0.0.0 it would listen on every
+    # network. It must bind to 127.0.0.1 only, and nothing may listen once the page is written.
+    code = (
+        "import os, socket\n"
+        "import numpy as np, psutil, pyvista as pv\n"
+        "binds = []\n"
+        "bind = socket.socket.bind\n"
+        "def spy(self, address):\n"
+        "    binds.append(address)\n"
+        "    return bind(self, address)\n"
+        "socket.socket.bind = spy\n"
+        "from viewer import scene as sc\n"
+        "scene = sc.Scene(blocks={'ellipsoid': pv.Sphere()}, centre=np.zeros(3), axes=np.eye(3),\n"
+        "                 ranges=np.ones(3), value_name='au')\n"
+        "sc.draw = lambda plotter, scene, units, pair_bar=True: plotter.add_mesh(scene.blocks['ellipsoid'])\n"
+        f"sc.export_html(scene, {str(tmp_path / 'a.html')!r})\n"
+        f"sc.export_html(scene, {str(tmp_path / 'b.html')!r})\n"
+        "listening = [c.laddr for c in psutil.Process().net_connections() if c.status == 'LISTEN']\n"
+        "print(sorted({a[0] for a in binds if isinstance(a, tuple)}), listening)\n"
+    )
+    env = {**__import__("os").environ, "TRAME_DEFAULT_HOST": "0.0.0.0"}
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=ROOT, env=env)
+    assert done.returncode == 0, done.stderr[-3000:]
+    assert done.stdout.strip().splitlines()[-1] == "['127.0.0.1'] []"
+    assert (tmp_path / "a.html").stat().st_size > 10000 and (tmp_path / "b.html").stat().st_size > 10000
