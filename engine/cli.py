@@ -94,8 +94,8 @@ def _number(low=None, high=None, *, above=False, integer=False):
         try:
             value = int(text) if integer else float(text)
         except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not a number; give {_range_text(low, high, above, integer)}") \
-                from None
+            raise argparse.ArgumentTypeError(f"{text!r} is not a number; give "
+                                             f"{_range_text(low, high, above, integer)}") from None
         if not math.isfinite(value):
             raise argparse.ArgumentTypeError(f"{text!r} is not a finite number; give "
                                              f"{_range_text(low, high, above, integer)}")
@@ -198,7 +198,8 @@ def _fit_options(parser: argparse.ArgumentParser):
                        help="transform the values before fitting (default: none)")
     group.add_argument("--bootstrap", type=_number(0, 10000, integer=True), default=50, metavar="N",
                        help="hole-wise bootstrap replicates for the uncertainty (default 50; 0 leaves it out)")
-    group.add_argument("--bootstrap-block", type=_number(0, 1e6), metavar="M", help="resample blocks of holes whose tops "
+    group.add_argument("--bootstrap-block", type=_number(0, 1e6), metavar="M",
+                       help="resample blocks of holes whose tops "
                        "share an M metre square in plan (default: half the fitted major range; 0: single holes)")
     group.add_argument("--seed", type=SEED, default=0, help="seed of the bootstrap (default 0)")
     group.add_argument("--threads", type=THREADS, metavar="N", help="worker threads (default: all cores)")
@@ -210,7 +211,8 @@ def _scene_options(parser: argparse.ArgumentParser):
                        help="draw the pairs of a lag bin along this model axis (default: major)")
     group.add_argument("--pairs-direction", metavar="TREND/PLUNGE", help="draw the pairs along this direction "
                        "instead of a model axis")
-    group.add_argument("--pairs-lag", type=_number(1, SCENE_LAGS, integer=True), metavar="K", help="lag bin 1..N of those pairs (default: the one "
+    group.add_argument("--pairs-lag", type=_number(1, SCENE_LAGS, integer=True), metavar="K",
+                       help="lag bin 1..12 of those pairs (default: the one "
                        "nearest half the range along the axis)")
     group.add_argument("--max-pairs", type=_number(1, 100000, integer=True), default=400, metavar="N",
                        help="pairs drawn at most (default 400)")

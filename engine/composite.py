@@ -471,7 +471,8 @@ def _reconcile(value_columns, hole_ids, domain_ids, hole_code, domain_code, leng
         "composite_metal": joined["composite_metal"], "left_out_metal": joined["left_out_metal"],
     })
     check["difference"] = check["input_after_cap"] - check["composite_metal"] - check["left_out_metal"]
-    scale = np.maximum(np.abs(check["input_after_cap"]), np.abs(check["composite_metal"]) + np.abs(check["left_out_metal"]))
+    scale = np.maximum(np.abs(check["input_after_cap"]),
+                       np.abs(check["composite_metal"]) + np.abs(check["left_out_metal"]))
     with np.errstate(invalid="ignore", divide="ignore"):  # relative to the metal at stake: round-off reads ~1e-16
         check["relative_difference"] = np.where(scale > 0, np.abs(check["difference"]) / scale, 0.0)
     if not by_domain:

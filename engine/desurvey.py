@@ -382,8 +382,8 @@ class Desurvey:
         end = np.nan_to_num(self.end_depth_, nan=0.0)
         n_grid = np.floor(end / step_m + 1e-9).astype(np.int64) + 1
         if float(n_grid.sum()) > MAX_TRACE_POINTS:
-            raise UsageError(f"--step {step_m:g}: the traces would hold about {float(n_grid.sum()):.3g} points (at most "
-                             f"{MAX_TRACE_POINTS:,}); give a step of the order of a metre.")
+            raise UsageError(f"--step {step_m:g}: the traces would hold about {float(n_grid.sum()):.3g} points (at "
+                             f"most {MAX_TRACE_POINTS:,}); give a step of the order of a metre.")
         grid_hole = np.repeat(np.arange(n_holes), n_grid)
         first = np.repeat(np.cumsum(n_grid) - n_grid, n_grid)
         grid_depth = (np.arange(len(grid_hole)) - first) * step_m

@@ -57,3 +57,14 @@ def test_ci_runs_the_readme_test_command():
         capture_output=True, text=True, cwd=ROOT,
     ).stdout.strip()
     assert extracted == commands["test"]
+
+
+def test_python_lines_fit_in_120_characters():
+    # house style: lines of at most 120 characters (docs/ and data excepted)
+    long = []
+    for folder in ("engine", "viewer", "synthetic_holes", "tests", "benchmarks"):
+        for path in (ROOT / folder).rglob("*.py"):
+            for number, line in enumerate(path.read_text(encoding="utf-8").splitlines(), start=1):
+                if len(line) > 120:
+                    long.append(f"{path.relative_to(ROOT)}:{number}")
+    assert long == []

@@ -139,7 +139,8 @@ def _compositing(c) -> str:
             ("length (m)", s["options"].get("length_m")), ("residual rule", s["options"].get("residual")),
             ("residuals dropped", s["left_out"]["residuals_dropped"]),
             ("below the minimum coverage", s["left_out"]["below_min_coverage"]),
-            ("largest metal difference (in - out - left out)", s["largest_metal_difference"])]
+            ("largest metal difference (in - out - left out)", s["largest_metal_difference"]),
+            ("the same, relative to the metal at stake", s.get("largest_relative_metal_difference"))]
     parts = [f"<p>Weighting: {e(s['weighting'])}.</p>", table(["item", "value"], rows, numeric=[1])]
     check = c.get("composite_check")
     if check is not None and len(check):

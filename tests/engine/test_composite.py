@@ -108,7 +108,8 @@ def test_equal_and_whole_run_composites():
 def test_bench_composites_follow_elevation():
     collars = pd.DataFrame({"hole": ["V", "I"], "x": [0.0, 50.0], "y": [0.0, 0.0], "z": [102.0, 100.0],
                             "depth": [40.0, 40.0]})
-    surveys = pd.DataFrame({"hole": ["V", "I"], "survey_depth": [0.0, 0.0], "azimuth": [0.0, 90.0], "dip": [-90.0, -60.0]})
+    surveys = pd.DataFrame({"hole": ["V", "I"], "survey_depth": [0.0, 0.0], "azimuth": [0.0, 90.0],
+                            "dip": [-90.0, -60.0]})
     trace = Desurvey().fit(collars, surveys)
     samples = pd.DataFrame({"hole": ["V"] * 20 + ["I"] * 20, "from": np.tile(np.arange(0.0, 40.0, 2.0), 2),
                             "to": np.tile(np.arange(2.0, 42.0, 2.0), 2), "au": 1.0})

@@ -173,7 +173,8 @@ def test_curving_holes_equal_slow_reference(method):
     trace = Desurvey(method).fit(collars, surveys)
     for h, row in enumerate(collars.itertuples()):
         part = surveys[surveys.hole == row.hole].sort_values("survey_depth")
-        expected = desurvey_hole((row.x, row.y, row.z), list(zip(part["survey_depth"], part["azimuth"], part["dip"])), method)
+        stations = list(zip(part["survey_depth"], part["azimuth"], part["dip"]))
+        expected = desurvey_hole((row.x, row.y, row.z), stations, method)
         got = trace.xyz_[trace.start_[h]:trace.start_[h + 1]]
         assert np.allclose(got, expected, atol=1e-8, rtol=0)
         # the fitted positions at the station depths are the station positions
@@ -238,7 +239,8 @@ def test_kernel_body_runs_with_jit_disabled():
         "import pandas as pd, numpy as np\n"
         "from engine.desurvey import Desurvey\n"
         "c = pd.DataFrame({'hole': ['A'], 'x': [0.0], 'y': [0.0], 'z': [0.0], 'depth': [3600.0]})\n"
-        "s = pd.DataFrame({'hole': ['A', 'A'], 'survey_depth': [3500.0, 3600.0], 'azimuth': [20.0, 45.0], 'dip': [-75.0, -65.0]})\n"
+        "s = pd.DataFrame({'hole': ['A', 'A'], 'survey_depth': [3500.0, 3600.0], 'azimuth': [20.0, 45.0],\n"
+        "                  'dip': [-75.0, -65.0]})\n"
         "t = Desurvey().fit(c, s)\n"
         "d = t.xyz_[1] - t.xyz_[0]\n"
         "p = t.positions(['A'], [3550.0])[0]\n"

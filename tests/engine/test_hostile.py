@@ -166,8 +166,8 @@ CASES = {
         code=0),
     "BOM and CRLF": Case("desurvey", intervals="\ufeff" + GOOD_INTERVALS.replace("\n", "\r\n"), code=0),
     "unicode ids": Case("desurvey", collars=GOOD_COLLARS.replace("A,", "孔-Ä,"),
-                        surveys=GOOD_SURVEYS.replace("A,", "孔-Ä,"), intervals=GOOD_INTERVALS.replace("A,", "孔-Ä,"),
-                        code=0),
+                        surveys=GOOD_SURVEYS.replace("A,", "孔-Ä,"),
+                        intervals=GOOD_INTERVALS.replace("A,", "孔-Ä,"), code=0),
     "500 value columns": Case("composite", intervals=WIDE, options=["--length", "1"], code=0),
     # rows that are left out, or not
     "errors without skip": Case("desurvey", intervals=GOOD_INTERVALS + "B,1,3,abc,SCHIST\n", code=1,

@@ -383,7 +383,8 @@ def test_kernel_runs_with_jit_disabled():
         "from engine.variogram import Sets, LagBins, Direction, VolumeGrid, experimental_variograms\n"
         "g = np.array([28, 25, 27, 25, 21, 25, 11, 16, 11, 17, 27, 26, 25, 26, 21.0])\n"
         "xyz = np.c_[np.arange(15) * 50.0, np.zeros(15), np.zeros(15)]\n"
-        "s = Sets(omni=LagBins(50.0, 4), directions=[Direction(90, 0, 10)], volume=VolumeGrid((50, 50, 50), (2, 1, 1)))\n"
+        "s = Sets(omni=LagBins(50.0, 4), directions=[Direction(90, 0, 10)],\n"
+        "         volume=VolumeGrid((50, 50, 50), (2, 1, 1)))\n"
         "t = experimental_variograms(xyz, g, s)\n"
         "print(' '.join(f'{v:.6f}' for v in t[t.set == 'omni']['gamma']))\n"
     )
