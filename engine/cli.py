@@ -278,7 +278,7 @@ def build_parser() -> argparse.ArgumentParser:
     shape.add_argument("--whole-run", action="store_true", help="one composite per run (domain intersection)")
     shape.add_argument("--bench", type=_number(0, 10000, above=True), metavar="H",
                        help="composite by slices of elevation H metres high")
-    shape.add_argument("--bench-base", type=_number(), default=0.0, metavar="Z",
+    shape.add_argument("--bench-base", type=_number(-1e8, 1e8), default=0.0, metavar="Z",
                        help="an elevation on a bench boundary (default 0)")
     shape.add_argument("--cap", action="append", default=[], metavar="COLUMN=VALUE",
                        help="cap a value column before compositing; repeatable")
@@ -401,10 +401,13 @@ def _read(args, notes: list | None = None):
     """Read and validate the tables. ``notes``: sentences for the console (a renamed option)."""
     from .tables import parse_column_options, read_tables
 
+    from .errors import list_some
+    from .tables import find_column
+
     categories = list(args.category)
     if getattr(args, "domain", None):
         categories += _domain_candidates(args.domain)
-    return read_tables(
+    tables = read_tables(
         args.collars, args.surveys, args.intervals,
         columns=parse_column_options(args.column, notes),
         dip_convention=args.dip_convention,
@@ -413,6 +416,11 @@ def _read(args, notes: list | None = None):
         missing_codes=args.missing_code,
         category_columns=categories,
     )
+    for name in args.category:
+        if find_column(tables.category_columns, name) is None:
+            raise UsageError(f"--category {name!r}: not an interval column other than hole, from and to. Interval "
+                             f"columns: {list_some(tables.value_columns + tables.category_columns, 40)}.")
+    return tables
 
 
 #: What each command writes into --out (names and glob patterns), removed at its start so that a
@@ -432,10 +440,29 @@ OUTPUTS = {"check": TABLE_OUTPUTS, "desurvey": (*TABLE_OUTPUTS, *DESURVEY_OUTPUT
 
 
 def _out_dir(args):
-    """The command's output folder (created, checked writable); its old outputs go at ``clear()``."""
-    from .outputs import OutputFolder
+    """The command's output folder (created, checked writable); its old outputs go at ``clear()``.
+    Bad usage when an input file would be overwritten (or removed) by an output of this command."""
+    from fnmatch import fnmatch
 
-    return OutputFolder(args.out, args.command, OUTPUTS[args.command])
+    from .outputs import MANIFEST, OutputFolder
+
+    if not str(args.out).strip():
+        raise UsageError("--out '': give the folder for the outputs.")
+    outputs = OUTPUTS[args.command]
+    out = Path(args.out).resolve()
+    for option in ("collars", "surveys", "intervals", "composites", "model"):
+        given = getattr(args, option, None)
+        if not given:
+            continue
+        path = Path(given).resolve()
+        relative = path.relative_to(out).as_posix() if path.is_relative_to(out) else None
+        if relative is not None and (relative == MANIFEST or any(fnmatch(relative, p) or
+                                                                 relative.startswith(p.rstrip("/") + "/")
+                                                                 for p in outputs)):
+            raise UsageError(f"--out {str(args.out)!r}: the {option} file {str(given)!r} lies there under a name "
+                             f"that drillaxis {args.command} writes, and would be overwritten; give another --out "
+                             "folder or rename the input.")
+    return OutputFolder(args.out, args.command, outputs)
 
 
 def _write_findings(tables, rejected, out: Path) -> None:
@@ -458,6 +485,9 @@ def _checked_tables(args, folder, console: Console, need_intervals: bool = True,
         check(tables)
     folder.clear()
     _write_findings(tables, _rows_would_reject(tables), folder.path)
+    if len(tables.findings):
+        console.say(f"findings: {tables.error_count} error(s), {tables.warning_count} warning(s) -> "
+                    f"{folder.path / 'findings.csv'}")
     for notice in tables.notices:
         console.warn(notice)
     usable, rejected = tables.usable(skip_bad_rows=getattr(args, "skip_bad_rows", False))
@@ -501,15 +531,26 @@ def _domain_column(text, columns, option="--domain"):
                      f"{list_some(columns, 40)}.")
 
 
-def _value_column(name, columns, where="the composites", option="--value"):
-    """The value column as its table spells it; bad usage (exit 2) listing the columns when absent."""
+def _value_column(name, columns, where="the composites", option="--value", categories=()):
+    """The value column as its table spells it; bad usage (exit 2) listing the columns when absent,
+    naming the columns it could mean when several differ only in case, and saying so when it was read
+    as a category (some of its cells are not numbers)."""
     from .errors import list_some
-    from .tables import find_column
+    from .tables import find_column, normalise_name
 
     found = find_column(columns, name)
-    if found is None:
-        raise UsageError(f"{option} {name!r}: no such column in {where}. Columns: {list_some(columns, 40)}.")
-    return found
+    if found is not None:
+        return found
+    alike = [c for c in columns if normalise_name(c) == normalise_name(name)]
+    if len(alike) > 1:
+        raise UsageError(f"{option} {name!r}: several columns of {where} could be meant ({list_some(alike)}); give "
+                         "the name exactly as written.")
+    category = find_column(categories, name)
+    if category is not None:
+        raise UsageError(f"{option} {name!r}: column {category!r} was read as a category, not as values: some of its "
+                         "cells are not numbers (see the warning in findings.csv); fix them, or name their text "
+                         "with --missing-marker.")
+    raise UsageError(f"{option} {name!r}: no such column in {where}. Columns: {list_some(columns, 40)}.")
 
 
 def _some_names(names, limit: int = 30) -> str:
@@ -614,13 +655,14 @@ def _composite_options(args, domain=None):
     """The compositing options; ``domain``: the domain column as the tables spell it."""
     from .composite import CompositeOptions
 
-    modes = [name for name, on in (("--length", args.length is not None and not (args.whole_run or args.bench)),
-                                   ("--whole-run", args.whole_run), ("--bench", args.bench is not None)) if on]
-    if args.whole_run and args.bench is not None:
-        raise UsageError("--whole-run and --bench are two ways of compositing: give one.")
+    modes = [name for name, on in (("--length", args.length is not None), ("--whole-run", args.whole_run),
+                                   ("--bench", args.bench is not None)) if on]
+    if len(modes) > 1:
+        raise UsageError(f"{' and '.join(modes)} are {len(modes)} ways of compositing: give one.")
     if not modes:
         raise UsageError("give --length L (fixed-length composites), --whole-run or --bench H.")
     caps = {}
+    seen = set()
     for item in args.cap:
         column, _, value = item.rpartition("=")  # a column's name may hold '='; a number never does
         try:
@@ -629,6 +671,11 @@ def _composite_options(args, domain=None):
             cap = math.nan
         if not column.strip() or not math.isfinite(cap):
             raise UsageError(f"--cap {item!r}: write COLUMN=VALUE with a finite number, for example --cap au_gpt=30.")
+        from .tables import normalise_name
+
+        if normalise_name(column) in seen:
+            raise UsageError(f"--cap {item!r}: {column.strip()!r} is capped twice; give one cap per column.")
+        seen.add(normalise_name(column))
         caps[column.strip()] = cap
     mode = "whole-run" if args.whole_run else "bench" if args.bench is not None else "length"
     return CompositeOptions(
@@ -647,6 +694,9 @@ def _resolve_composite_columns(options, tables):
     def column(name, among, option, kind):
         found = find_column(among, name)
         if found is None:
+            if kind == "value" and find_column(tables.category_columns, name) is not None:
+                raise UsageError(f"{option} {name!r}: that column was read as a category, not as values: some of "
+                                 "its cells are not numbers (see findings.csv).")
             raise UsageError(f"{option} {name!r}: no such {kind} column. {kind.capitalize()} columns: "
                              f"{list_some(among, 40)}.")
         return found
@@ -670,7 +720,7 @@ def _composite(tables, rejected, options, args, out: Path, step, trace=None):
         step("desurveying")
         trace = Desurvey(args.method, args.dip_convention, args.azimuth_offset).fit(tables.collars, tables.surveys)
     step("compositing")
-    columns = ["hole", "from", "to", *tables.value_columns] + ([options.domain] if options.domain else [])
+    columns = ["hole", "from", "to", "_line", *tables.value_columns] + ([options.domain] if options.domain else [])
     result = composite(tables.intervals[columns], tables.value_columns, options, trace)
     step("writing composites")
     write_csv(result.composites, out / "composites.csv")
@@ -723,14 +773,24 @@ def cmd_composite(args, console: Console) -> int:
     return 0
 
 
-def _read_composites(path, value, domain, varying=True) -> "Composites":
-    from .tables import read_raw_table
+def _read_composites(path, value, domain, varying=True, domain_option="--domain") -> "Composites":
+    from .tables import normalise_name, read_raw_table
 
-    raw = read_raw_table(path, "composites", frozenset({"hole"}))
-    return _composites_arrays(raw.frame, value, domain, path, varying)
+    # the hole ids and the domain column read as written: codes such as 007 or 02 stay text
+    text = {"hole"} | ({normalise_name(c) for c in _domain_candidates(domain)} if domain else set())
+    raw = read_raw_table(path, "composites", frozenset(text))
+    return _composites_arrays(raw.frame, value, domain, path, varying, domain_option)
 
 
-def _domain_rows(frame, column, wanted, path):
+def _left_out_summary(data: "Composites", console: Console):
+    if data.unplaced:
+        console.say(f"  {data.unplaced} composite(s) without a position left out")
+    if data.without_value:
+        console.say(f"  {data.without_value} composite(s) without a value of {data.value} left out (sampling gaps "
+                    "or missing assays)")
+
+
+def _domain_rows(frame, column, wanted, path, option="--domain"):
     """The rows whose ``column`` reads ``wanted``; bad usage listing the values present when none do."""
     import pandas as pd
 
@@ -742,7 +802,7 @@ def _domain_rows(frame, column, wanted, path):
         present = pd.unique(text[text != ""])
         near = [v for v in present if v.lower() == wanted.lower()]
         hint = f" (did you mean {near[0]!r}? values are compared exactly)" if near else ""
-        raise UsageError(f"--domain {column}={shorten(wanted)}: no row of {path} has {column} = "
+        raise UsageError(f"{option} {column}={shorten(wanted)}: no row of {path} has {column} = "
                          f"{shorten(wanted)!r}{hint}. Values present: {list_some(sorted(present), 30)}.")
     return rows
 
@@ -765,6 +825,7 @@ class Composites:
     value: str
     domain_column: str | None = None
     domain_value: str | None = None
+    without_value: int = 0  # composites placed but with no finite value (missing in the variograms)
 
     @property
     def domain_text(self):
@@ -777,7 +838,8 @@ class Composites:
         return pd.factorize(self.rows["hole"])[1]
 
 
-def _composites_arrays(frame, value, domain, path="the composites", varying=True) -> Composites:
+def _composites_arrays(frame, value, domain, path="the composites", varying=True,
+                       domain_option="--domain") -> Composites:
     """The composites of ``value`` (a column) in ``domain`` (None or ``COLUMN=VALUE``, COLUMN as the
     input tables spell it); ``varying``: refuse values that do not vary."""
     import numpy as np
@@ -795,8 +857,8 @@ def _composites_arrays(frame, value, domain, path="the composites", varying=True
     column = wanted = None
     where = ""
     if domain:
-        column, wanted = _domain_column(domain, list(frame.columns))
-        frame = _domain_rows(frame, column, wanted, path)
+        column, wanted = _domain_column(domain, list(frame.columns), domain_option)
+        frame = _domain_rows(frame, column, wanted, path, domain_option)
         where = f" in {column} = {shorten(wanted)}"
     try:
         xyz = frame[["x", "y", "z"]].to_numpy(dtype=np.float64)
@@ -807,6 +869,8 @@ def _composites_arrays(frame, value, domain, path="the composites", varying=True
     keep = np.isfinite(xyz).all(axis=1)
     if not keep.any():
         raise TableError(f"{path}: no composite{where} has a position (x, y, z).")
+    values = np.where(np.isfinite(values), values, np.nan)  # an infinity is no value either
+    without = int(np.isnan(values[keep]).sum())
     if varying:
         require_variation(values[keep], f"{value!r}{where}")
     hole = pd.factorize(frame["hole"][keep])[0]  # codes of the rows kept: their names are factorize(rows)[1]
@@ -816,14 +880,15 @@ def _composites_arrays(frame, value, domain, path="the composites", varying=True
     else:
         depth, length = np.zeros(len(frame)), None
     return Composites(xyz[keep], values[keep], hole, depth[keep], length, int((~keep).sum()), frame[keep], whole,
-                      value, column, wanted)
+                      value, column, wanted, without)
 
 
 def cmd_variogram(args, console: Console) -> int:
     import numpy as np
 
+    from .errors import TableError
     from .pairs import PairIndex
-    from .variogram import (Direction, LagBins, Sets, VolumeGrid, accumulate, fan, indicator, normal_scores,
+    from .variogram import (Direction, LagBins, Sets, VolumeGrid, accumulate, fan, indicator, require_variation,
                             variogram_table)
 
     folder = _out_dir(args)
@@ -832,24 +897,22 @@ def cmd_variogram(args, console: Console) -> int:
     with console.stages(names) as step:
         step(names[0])
         data = _read_composites(args.composites, args.value, args.domain)
-        xyz, values, hole, depth, length, unplaced = (data.xyz, data.values, data.hole, data.depth, data.length,
-                                                      data.unplaced)
+        xyz, values, hole, depth, length = data.xyz, data.values, data.hole, data.depth, data.length
         args.value = data.value
-        if args.transform == "log":
-            if (values[np.isfinite(values)] <= 0).any():
-                raise UsageError("--transform log needs values above zero.")
-            values = np.log(values)
-        elif args.transform == "normal-score":
-            values = normal_scores(values)
+        values = _transformed(values, args.transform, data.value)
         if args.indicator is not None:
             values = indicator(values, args.indicator)
+            require_variation(values, f"the indicator of {data.value!r} at {args.indicator:g} (1 at or below it, "
+                              "0 above)")
         lag = args.lag
         if lag is None:  # a tenth of a third of the largest extent, rounded
             extent = float(np.max(xyz.max(axis=0) - xyz.min(axis=0)))
             lag = max(float(np.round(extent / 30.0, 1)), 1e-3)
         bins = LagBins(lag, args.lags, args.lag_tolerance)
         directions = []
-        if args.directions:
+        if args.directions is not None:
+            if not args.directions.strip():
+                raise UsageError("--directions '': give at least one direction as TREND/PLUNGE, for example 45/10.")
             for item in args.directions.split(","):
                 trend, plunge = _trend_plunge(item, "--directions")
                 directions.append(Direction(trend, plunge, args.angle_tolerance, args.bandwidth,
@@ -883,11 +946,17 @@ def cmd_variogram(args, console: Console) -> int:
                          dask=args.dask)
         step(names[3])
         table = variogram_table(acc, args.measure)
-        _write_variograms(acc, acc, out, args.measure)
+        binned = float(table["pairs"].sum())
+        if volume is not None:
+            binned += float(acc.volume(0)[1].sum())
+        if binned == 0:
+            raise TableError(f"{args.composites}: no pair of composites falls in any lag of these sets (reach "
+                             f"{sets.plan().max_distance_m:.4g} m); check --lag and --lags against the spacing of the "
+                             "composites.")
+        _write_variograms(acc, acc, out, data.value, data.domain_text, args.measure)
     console.say(f"variograms of {args.value} ({args.measure}): {len(values)} composites, "
                 f"{acc.accepted:,} pairs within {sets.plan().max_distance_m:.1f} m -> {out / 'variograms.csv'}")
-    if unplaced:
-        console.say(f"  {unplaced} composite(s) without a position left out")
+    _left_out_summary(data, console)
     for name, part in table.groupby("set", sort=False):
         console.say(f"  {name}: {part['direction'].nunique() if name == 'directional' else 1} set(s), "
                     f"{len(part)} lag rows, {int(part['pairs'].sum()):,} pairs")
@@ -896,6 +965,26 @@ def cmd_variogram(args, console: Console) -> int:
                     f"{2 * volume.half_counts[2] + 1} cells -> {out / 'volume.npz'}")
     folder.finish()
     return 0
+
+
+def _transformed(values, kind: str, name: str, residuals: bool = False):
+    """``values`` under ``--transform`` (none, log or normal-score); bad usage when the log of a value
+    at or below zero is asked for, with the count and the column."""
+    import numpy as np
+
+    from .variogram import normal_scores
+
+    if kind == "log":
+        below = int((values[np.isfinite(values)] <= 0).sum())
+        if below:
+            raise UsageError(f"--transform log: {below} value(s) of {name!r} are at or below zero, which have no "
+                             "logarithm" + (" (residuals from a trend are never all positive: use --transform "
+                                            "normal-score)" if residuals else "; use --transform normal-score, or "
+                                            "replace those values (for example by half the detection limit)") + ".")
+        return np.log(values)
+    if kind == "normal-score":
+        return normal_scores(values)
+    return values
 
 
 def _trend_plunge(text, option):
@@ -921,15 +1010,8 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, doma
     from .fit import FitOptions, VariogramFitter, cone_directions, model_json
     from .outputs import write_csv, write_json
     from .pattern import check_model, drill_pattern
-    from .variogram import normal_scores
 
-    if args.transform == "log":
-        if (values[np.isfinite(values)] <= 0).any():
-            raise UsageError("--transform log needs values above zero" + (" (residuals from a trend are not: use "
-                             "--transform normal-score)" if detrend else "") + ".")
-        values = np.log(values)
-    elif args.transform == "normal-score":
-        values = normal_scores(values)
+    values = _transformed(values, args.transform, args.value, residuals=bool(detrend))
     options = FitOptions(lag_m=args.lag, lags=args.lags, structures=args.structures, bootstrap=args.bootstrap,
                          bootstrap_block_m=getattr(args, "bootstrap_block", None), seed=args.seed,
                          threads=args.threads)
@@ -944,7 +1026,8 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, doma
     pattern["warnings"] = checks["warnings"]
     fitted = model_json(result, args.value, domain_text)
     warnings = (list(lead or []) + [f"Drill pattern: {w}" for w in checks["warnings"]]
-                + [f"Fit: {p}" for p in fitted["fit"]["problems"]])  # every warning the console prints
+                + [f"Fit: {p}" for p in fitted["fit"]["problems"] + fitted["fit"]["warnings"]])
+    # (every warning the console prints)
     data = {"schema": fitted.pop("schema"), "warnings": warnings, **fitted}
     data["transform"] = args.transform
     if detrend:
@@ -972,7 +1055,7 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, doma
                               "model": np.nan, "model_in_cone": np.nan}))
     frame = pd.concat(rows, ignore_index=True)
     write_csv(frame, out / "fit_variograms.csv")
-    _write_variograms(fitter.principal_, fitter.volume_, out)
+    _write_variograms(fitter.principal_, fitter.volume_, out, args.value, domain_text)
     volume = None
     grid = fitter.volume_.plan.sets.volume
     if grid is not None:
@@ -981,8 +1064,10 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, doma
     return {"model": data, "pattern": pattern, "fit_variograms": frame, "volume": volume}
 
 
-def _write_variograms(line_acc, volume_acc, out: Path, measure: str = "semivariogram"):
-    """variograms.csv from the line sets of one pass and volume.npz from the volume of another."""
+def _write_variograms(line_acc, volume_acc, out: Path, variable: str, domain: str | None,
+                      measure: str = "semivariogram"):
+    """variograms.csv from the line sets of one pass and volume.npz from the volume of another; the
+    volume names its variable, domain and measure, so that a scene never draws another's."""
     import numpy as np
 
     from .outputs import atomic_path, write_csv
@@ -996,7 +1081,8 @@ def _write_variograms(line_acc, volume_acc, out: Path, measure: str = "semivario
     with atomic_path(out / "volume.npz") as temporary:
         with open(temporary, "wb") as handle:
             np.savez_compressed(handle, gamma=gamma, pairs=counts, cell_m=np.asarray(volume.cell_m),
-                                half_counts=np.asarray(volume.half_counts), measure=measure)
+                                half_counts=np.asarray(volume.half_counts), measure=measure, variable=variable,
+                                domain=domain or "")
 
 
 def _model_summary(data: dict, out: Path, console: Console, printed=("Stationarity: ", "Tables: ")):
@@ -1101,16 +1187,28 @@ def _lead_warnings(data: dict) -> list:
 
 
 def _read_model(path):
-    """model.json as a dictionary and as a Model; a usage error when it cannot be read."""
+    """model.json as a dictionary and as a Model; a usage error when it cannot be read or is not a
+    model an estimate could use (no structure, a negative or missing sill or range, axes that are not
+    orthonormal)."""
     import json
 
     from .model import Model
 
     try:
         data = json.loads(Path(path).read_text(encoding="utf-8"))
-        return data, Model.from_json(data)
-    except (OSError, ValueError, KeyError) as exc:
+        if not isinstance(data, dict):
+            raise ValueError("not a JSON object")
+        model = Model.from_json(data)
+    except (OSError, ValueError, KeyError, TypeError) as exc:
         raise UsageError(f"--model {str(path)!r}: cannot read a model from it ({exc}).") from None
+    problems = model.problems() + ([] if model.structures else ["it has no structure"])
+    if problems:
+        raise UsageError(f"--model {str(path)!r}: not a model to draw: {'; '.join(problems)}.")
+    fit = data.get("fit")
+    lag = fit.get("lag_m") if isinstance(fit, dict) else None
+    data["fit"] = {**(fit if isinstance(fit, dict) else {}),
+                   "lag_m": lag if isinstance(lag, (int, float)) and math.isfinite(lag) and lag > 0 else None}
+    return data, model
 
 
 def cmd_stationarity(args, console: Console) -> int:
@@ -1134,8 +1232,7 @@ def cmd_stationarity(args, console: Console) -> int:
                               model_axes=axes)
     _stationarity_figures(report, data.xyz, data.values, out)
     _stationarity_summary(report, out, console)
-    if data.unplaced:
-        console.say(f"  {data.unplaced} composite(s) without a position left out")
+    _left_out_summary(data, console)
     folder.finish()
     return 0
 
@@ -1169,8 +1266,7 @@ def cmd_fit(args, console: Console) -> int:
                                 data.domain_text, detrend=trend)
     _model_summary(fitted["model"], out, console)
     console.say(f"  caution: {CAUTION}")
-    if data.unplaced:
-        console.say(f"  {data.unplaced} composite(s) without a position left out")
+    _left_out_summary(data, console)
     folder.finish()
     return 0
 
@@ -1213,6 +1309,13 @@ def _scene(xyz, values, hole, depth, hole_names, model: dict, volume, args, out:
         chosen = {"along": label, "lag_bin": k, "lag_m": k * lag, "angle_tolerance_deg": 15.0,
                   "pairs_in_bin": pairs["pairs_in_bin"], "pairs_drawn": int(len(pairs["i"]))}
     centre = o["centre"]
+    if centre is not None:  # the ellipsoid is drawn among the data, not beside nothing
+        reach = max(max(s.ranges_m) for s in fitted.structures)
+        lo, hi = xyz.min(axis=0) - reach, xyz.max(axis=0) + reach
+        if not np.all((np.asarray(centre) >= lo) & (np.asarray(centre) <= hi)):
+            raise UsageError(f"--centre {','.join(f'{v:g}' for v in centre)}: outside the data (east {lo[0]:.0f} to "
+                             f"{hi[0]:.0f}, north {lo[1]:.0f} to {hi[1]:.0f}, elevation {lo[2]:.0f} to {hi[2]:.0f} m, "
+                             "within a range of the composites); give a point among them.")
     from viewer import scene as sc
 
     try:
@@ -1260,20 +1363,31 @@ def cmd_view(args, console: Console) -> int:
     model, _ = _read_model(args.model)
     value = args.value or model.get("variable")
     domain = args.domain if args.domain is not None else model.get("domain")
-    data = _read_composites(args.composites, value, domain, varying=False)
+    data = _read_composites(args.composites, value, domain, varying=False,
+                            domain_option="--domain" if args.domain is not None else "the model's domain")
     volume = None
     stored = Path(args.model).with_name("volume.npz")
     if stored.exists():
         try:
             with np.load(stored) as found:
                 volume = {key: found[key] for key in ("gamma", "pairs", "cell_m", "half_counts")}
+                names = {key: str(found[key]) if key in found.files else None for key in ("variable", "domain",
+                                                                                         "measure")}
         except (OSError, ValueError, KeyError, zipfile.BadZipFile) as exc:
             console.warn(f"{stored} cannot be read ({exc}); the scene is drawn without the variogram volume")
+        else:
+            wanted = {"variable": model.get("variable"), "domain": model.get("domain") or "",
+                      "measure": "semivariogram"}
+            if names != wanted:
+                console.warn(f"{stored} is not the volume of this model (it holds {names['measure']} of "
+                             f"{names['variable']!r} in {names['domain'] or 'all domains'!r}; the model is of "
+                             f"{wanted['variable']!r} in {wanted['domain'] or 'all domains'!r}); the scene is drawn "
+                             "without the variogram volume")
+                volume = None
     folder.clear()
     drawn = _scene(data.xyz, data.values, data.hole, data.depth, data.hole_names, model, volume, args, out, data.value)
     _scene_summary(drawn, out, console)
-    if data.unplaced:
-        console.say(f"  {data.unplaced} composite(s) without a position left out")
+    _left_out_summary(data, console)
     folder.finish()
     return 0
 
@@ -1361,7 +1475,8 @@ def cmd_run(args, console: Console) -> int:
 
     def check(tables):  # the options against the tables, before anything is written
         nonlocal options
-        args.value = _value_column(args.value, tables.value_columns, "the intervals table's value columns")
+        args.value = _value_column(args.value, tables.value_columns, "the intervals table's value columns",
+                                   categories=tables.category_columns)
         column = None
         if args.domain:
             column, wanted = _domain_column(args.domain, tables.category_columns)
@@ -1524,6 +1639,7 @@ def _quiet_libraries() -> None:
     warnings.filterwarnings("ignore", message=".*DataFrame is highly fragmented.*")
     warnings.filterwarnings("ignore", module=r"(pyvista|vtkmodules|trame\w*|wslink)(\..*)?$")
     warnings.filterwarnings("ignore", category=DeprecationWarning)
+    warnings.filterwarnings("ignore", category=RuntimeWarning)  # numpy's overflow and invalid-value notes
     try:
         from numba.core.errors import NumbaPerformanceWarning
 

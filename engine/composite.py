@@ -32,7 +32,7 @@ import numpy as np
 import pandas as pd
 
 from ._jit import jit_parallel
-from .errors import UsageError, ValidationError
+from .errors import UsageError, ValidationError, list_some
 
 RESIDUAL_RULES = ("merge", "drop", "keep")
 MODES = ("length", "whole-run", "bench")
@@ -285,7 +285,8 @@ def composite(intervals: pd.DataFrame, value_columns, options: CompositeOptions,
         bench composites.
     """
     value_columns = list(value_columns)
-    category_columns = [c for c in intervals.columns if c not in value_columns and c not in ("hole", "from", "to")]
+    category_columns = [c for c in intervals.columns
+                        if c not in value_columns and c not in ("hole", "from", "to", "_line")]
     options.validate(value_columns, category_columns)
     if options.mode == "bench" and trace is None:
         raise UsageError("bench composites need the hole traces (collars and surveys).")
@@ -294,8 +295,15 @@ def composite(intervals: pd.DataFrame, value_columns, options: CompositeOptions,
     hole_code, hole_ids = pd.factorize(frame["hole"], sort=False)
     hole_ids = np.asarray(hole_ids, dtype=object)
     if options.domain:
+        if options.domain != "domain" and "domain" in value_columns + category_columns:
+            raise UsageError(f"--domain {options.domain!r}: the intervals also hold a column named 'domain', which "
+                             "the composites' own domain column would hide; rename one of them.")
         domain_code, domain_ids = pd.factorize(frame[options.domain], sort=True, use_na_sentinel=False)
         domain_ids = np.asarray([("" if pd.isna(d) else str(d)) for d in domain_ids], dtype=object)
+        blank = int((domain_ids[domain_code] == "").sum())
+        if blank:
+            warnings.append(f"{blank} sample(s) have no value in the domain column {options.domain!r}: they are "
+                            "composited as a domain of their own, named '' (empty); assign them a domain to use them")
     else:
         domain_code, domain_ids = np.zeros(len(frame), dtype=np.int64), np.array([""], dtype=object)
     d_from = frame["from"].to_numpy(dtype=np.float64)
@@ -327,9 +335,12 @@ def composite(intervals: pd.DataFrame, value_columns, options: CompositeOptions,
             warnings.append(f"density missing for {density_filled} sample(s): taken as {options.density_default:g}")
         if (rho <= 0).any():
             bad = rho <= 0
+            lines = frame["_line"].to_numpy()[order][bad] if "_line" in frame else []
             raise ValidationError(
-                f"density column {options.density!r} has {int(bad.sum())} value(s) not above zero (holes "
-                + ", ".join(repr(h) for h in pd.unique(hole_ids[hole_code[bad]])[:5]) + "); fix them."
+                f"density column {options.density!r} has {int(bad.sum())} value(s) not above zero ("
+                + (f"intervals lines {', '.join(map(str, lines[:5]))}{' ...' if len(lines) > 5 else ''}; "
+                   if len(lines) else "")
+                + "holes " + list_some(pd.unique(hole_ids[hole_code[bad]])) + "); fix them."
             )
         weight = rho
         weighted[:] = [c != options.density for c in value_columns]
@@ -369,6 +380,9 @@ def composite(intervals: pd.DataFrame, value_columns, options: CompositeOptions,
     with np.errstate(invalid="ignore", divide="ignore"):
         value = metal / mass
     value[mass == 0] = np.nan
+    empty = [c for v, c in enumerate(value_columns) if not np.isfinite(value[:, v]).any()]
+    if empty:
+        warnings.append(f"no composite holds a value of {list_some(empty)}: the column(s) have no sampled value")
 
     c_length = c_to - c_from
     dropped = residual & (options.residual == "drop") & (options.mode == "length") & (not options.equal)

@@ -14,6 +14,8 @@ import numpy as np
 from .errors import UsageError
 from .pairs import _kernels as kernels
 
+MAX_LOCAL_WORKERS = 64  # worker processes of a local cluster: each holds the points; more only thrash
+
 
 def _chunk_pass(data, tasks):
     """Run on a worker: the single-thread pass over some tasks."""
@@ -36,8 +38,8 @@ def client_for(address: str):
             workers = int(address.split(":", 1)[1])
         except ValueError:
             raise UsageError(f"--dask {address!r}: write local:N with N worker processes.") from None
-        if workers < 1:
-            raise UsageError(f"--dask {address!r}: at least one worker.")
+        if not 1 <= workers <= MAX_LOCAL_WORKERS:
+            raise UsageError(f"--dask {address!r}: give local:N with N from 1 to {MAX_LOCAL_WORKERS} worker processes.")
         cluster = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None)
         return Client(cluster), cluster
     if "://" not in address or not address.split("://", 1)[1]:

@@ -22,7 +22,7 @@ The steps, each from the pair engine in few passes:
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, field
 
 import numpy as np
 
@@ -175,16 +175,17 @@ def _rotation(rotvec) -> np.ndarray:
     return Rotation.from_rotvec(rotvec).as_matrix()
 
 
-def _unpack(p, n_struct, shape, axes0, nugget, fit_rotation):
+def _unpack(p, n_struct, shape, axes0, nugget, fit_rotation, unit=1.0):
     """Parameters: the nugget when ``nugget`` is None; per structure (sill, major range,
-    semi/major, minor/semi); then a rotation vector when ``fit_rotation``."""
+    semi/major, minor/semi); then a rotation vector when ``fit_rotation``. Nugget and sills are in
+    ``unit`` (the scale of the values' variogram), so that every parameter is of order one."""
     structures = []
     at = 0
     if nugget is None:
-        nugget, at = p[0], 1
+        nugget, at = p[0] * unit, 1
     for s in range(n_struct):
         sill, a, q1, q2 = p[at + 4 * s:at + 4 * s + 4]
-        structures.append(Structure(shape, sill, (a, a * q1, a * q1 * q2)))
+        structures.append(Structure(shape, sill * unit, (a, a * q1, a * q1 * q2)))
     axes = axes0
     if fit_rotation:
         axes = axes0 @ _rotation(p[at + 4 * n_struct:at + 4 * n_struct + 3]).T
@@ -203,15 +204,20 @@ def fit_lag_vectors(h, gamma, weight, nugget, axes0, n_struct, shape, start, fit
     from scipy.optimize import least_squares
 
     h = np.asarray(h, dtype=np.float64)
-    sw = np.sqrt(np.asarray(weight, dtype=np.float64))
+    gamma = np.asarray(gamma, dtype=np.float64)
+    # sills and residuals in units of the values' own scale, so that the fit is the same whatever the
+    # grade's unit (g/t or kg/t): the solver's finite-difference steps and tolerances are not relative
+    # for parameters below one, and every constant below is relative to the scale
+    scale = max(float(np.mean(np.abs(gamma))), np.finfo(np.float64).tiny)
+    sw = np.sqrt(np.asarray(weight, dtype=np.float64)) / scale
     x0, lo, hi = [], [], []
     if nugget is None:
-        x0, lo, hi = [max(float(nugget_start or 0.0), 0.0)], [0.0], [np.inf]
+        x0, lo, hi = [max(float(nugget_start or 0.0), 0.0) / scale], [0.0], [np.inf]
     top = max_range if max_range else 10 * max(s[1] for s in start)
     for sill, a, b, c in start:
         q1 = min(max(b / a, 0.02), 1.0)
         q2 = min(max(c / b, 0.02), 1.0)
-        x0 += [max(sill, 1e-9), min(max(a, 1e-3), top), q1, q2]
+        x0 += [max(sill / scale, 1e-9), min(max(a, 1e-3), top), q1, q2]
         lo += [0.0, 1e-3, 0.02, 0.02]
         hi += [np.inf, top, 1.0, 1.0]
     if fit_rotation:
@@ -220,12 +226,12 @@ def fit_lag_vectors(h, gamma, weight, nugget, axes0, n_struct, shape, start, fit
         hi += [0.6, 0.6, 0.6]
 
     def residual(p):
-        m = _unpack(p, n_struct, shape, axes0, nugget, fit_rotation)
+        m = _unpack(p, n_struct, shape, axes0, nugget, fit_rotation, scale)
         return sw * (_model_values(m, h) - gamma)
 
     result = least_squares(residual, np.array(x0), bounds=(np.array(lo), np.array(hi)), x_scale="jac",
                            max_nfev=100 * len(x0), xtol=tolerance, ftol=tolerance, gtol=tolerance)
-    model = _unpack(result.x, n_struct, shape, axes0, nugget, fit_rotation)
+    model = _unpack(result.x, n_struct, shape, axes0, nugget, fit_rotation, scale)
     r = _model_values(model, h) - gamma
     return model, float(np.sum(weight * r * r)), r
 
@@ -275,13 +281,13 @@ def _principal_data(experimentals, axes, min_pairs, tolerance_deg=None):
 def _starts(experimentals, variance, nugget, n_struct, reach):
     """Starting sills and ranges: where each principal variogram first reaches 90% of the sill."""
     ranges = []
-    target = nugget + 0.9 * max(variance - nugget, 1e-12)
+    target = nugget + 0.9 * max(variance - nugget, 1e-12 * variance)
     for ex in experimentals:
         ok = np.isfinite(ex.gamma) & (ex.pairs > 0)
         over = np.flatnonzero(ok & (ex.gamma >= target))
         ranges.append(float(ex.distance[over[0]]) if len(over) else reach)
     ranges = sorted([max(r, 1e-3) for r in ranges], reverse=True)
-    part = max(variance - nugget, 1e-12)
+    part = max(variance - nugget, 1e-12 * variance)
     if n_struct == 1:
         return [[(part, *ranges)]]
     return [[(part / 2, *(r * f for r in ranges)), (part / 2, *ranges)] for f in (0.2, 0.4)]
@@ -293,7 +299,7 @@ def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, r
     h, g, w, which = _principal_data(experimentals, axes, options.min_pairs, options.principal_tolerance_deg)
     if len(g) < 4:
         raise FitError("fewer than four supported lags along the principal directions: too few pairs to fit. "
-                       "Try a longer --lag or fewer lags.")
+                       "Check --lag and --lags against the drill spacing: the lags must hold pairs of several holes.")
     counts = (1, 2) if options.structures == "auto" else (int(options.structures),)
     candidates = []
     for n_struct in counts:
@@ -333,6 +339,7 @@ class FitResult:
     principal: list  # Experimental along major, semi-major, minor
     downhole: Experimental
     bootstrap: dict | None = None
+    warnings: list = field(default_factory=list)  # sentences for the user: what the fit could not resolve
 
 
 def default_lag(xyz, hole, composite_length):
@@ -396,7 +403,8 @@ class VariogramFitter:
         support = np.array([ex.pairs.sum() for ex in search_ex])
         if not np.isfinite(scores).any():
             raise FitError("no search direction has three lags with enough pairs: too few composites or "
-                           "lags too short for the drill spacing. Try a longer --lag.")
+                           "lags that do not match the drill spacing. Check --lag and --lags: the lags must reach "
+                           "across several holes and hold pairs.")
         smooth = smooth_on_sphere(u, scores, np.sqrt(support), o.smoothing_deg)
         major = u[int(np.nanargmin(smooth))]
 
@@ -423,7 +431,8 @@ class VariogramFitter:
                            {"directions": int(len(u)), "tolerance_deg": o.search_tolerance_deg,
                             "best_score": float(np.nanmin(smooth)), "worst_score": float(np.nanmax(smooth)),
                             "initial_axes": axes0.tolist(), "fan_directions": int(len(fan_u))},
-                           candidates, residuals, principal, downhole)
+                           candidates, residuals, principal, downhole,
+                           warnings=unresolved_ranges(final, xyz, reach))
         if o.bootstrap > 0:
             step(f"bootstrap of {o.bootstrap} replicates")
             result.bootstrap = self._bootstrap(xyz, values, hole, depth, index, result, bins, downhole_bins)
@@ -597,6 +606,26 @@ def _stored_volume_cells(volume, first_slot, reach):
     return h[keep], slots[keep]
 
 
+def unresolved_ranges(model: Model, xyz, reach_m: float) -> list[str]:
+    """Warnings for ranges the data cannot show: a range at the longest lag fitted (the variogram does
+    not level off within the lags: the range is a bound, not an estimate) or longer than the data reach
+    along its axis."""
+    out = []
+    extent = np.ptp(np.asarray(xyz, dtype=np.float64) @ model.axes.T, axis=0)
+    for k, s in enumerate(model.structures, 1):
+        if s.ranges_m[0] >= 0.99 * reach_m:
+            out.append(f"The major range of structure {k} ({s.ranges_m[0]:.1f} m) sits at the longest lag fitted "
+                       f"({reach_m:.1f} m): the variogram does not level off within the lags, so the range is a bound, "
+                       "not an estimate. A trend or a domain larger than the lags can do this: check stationarity, "
+                       "and reach further with --lag and --lags.")
+    for a, name in enumerate(AXIS_NAMES):
+        longest = max(s.ranges_m[a] for s in model.structures)
+        if longest > extent[a]:
+            out.append(f"The {name.replace('_', '-')} range ({longest:.1f} m) is longer than the data reach along "
+                       f"that axis ({extent[a]:.1f} m): no pair of composites is that far apart along it.")
+    return out
+
+
 def orientation_axes(major, semi) -> np.ndarray:
     """Rows major, semi-major (made orthogonal to the major), minor = major x semi-major."""
     major = np.asarray(major, dtype=np.float64)
@@ -622,6 +651,7 @@ def model_json(result: FitResult, variable: str, domain: str | None) -> dict:
         "search": result.search,
         "residuals": result.residuals,
         "problems": m.problems(),
+        "warnings": result.warnings,
     }
     if result.bootstrap is not None:
         b = {key: v for key, v in result.bootstrap.items() if key != "samples"}

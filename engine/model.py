@@ -134,7 +134,8 @@ class Model:
             if not all(r > 0 and math.isfinite(r) for r in s.ranges_m):
                 out.append(f"structure {k}: ranges {s.ranges_m} must be above zero")
         gram = self.axes @ self.axes.T
-        if not np.allclose(gram, np.eye(3), atol=1e-9) or np.linalg.det(self.axes) < 0:
+        if not np.isfinite(self.axes).all() or not np.allclose(gram, np.eye(3), atol=1e-6) \
+                or np.linalg.det(self.axes) < 0:
             out.append("the axes are not orthonormal and right-handed")
         if self.sill <= 0:
             out.append("the total sill is not above zero")

@@ -173,14 +173,17 @@ def _exponential_fit(h, gamma, counts, span, min_pairs, variance):
     if ok.sum() < 3:
         return 0.0, float(variance), float(max(span, 1e-6))
     hh, gg, ww = h[ok], gamma[ok], np.sqrt(counts[ok] / counts[ok].sum())
+    # nugget and sill in units of the variance, so that the fit is the same in any unit of the values
+    unit = float(variance) if variance > 0 else max(float(np.nanmax(gg)), np.finfo(np.float64).tiny)
+    gu = gg / unit
 
     def residual(p):
-        return ww * (p[0] + p[1] * (1 - np.exp(-3 * hh / p[2])) - gg)
+        return ww * (p[0] + p[1] * (1 - np.exp(-3 * hh / p[2])) - gu)
 
-    top = 3.0 * float(np.nanmax(gg)) + 1e-12
-    start = [0.1 * variance, 0.9 * variance, max(0.25 * span, hh[0] * 1.01)]
+    top = 3.0 * float(np.nanmax(gu)) + 1e-12
+    start = [0.1, 0.9, max(0.25 * span, hh[0] * 1.01)]
     fit = least_squares(residual, start, bounds=([0.0, 0.0, hh[0]], [top, top, 2.0 * span]))
-    return float(fit.x[0]), float(fit.x[1]), float(fit.x[2])
+    return float(fit.x[0] * unit), float(fit.x[1] * unit), float(fit.x[2])
 
 
 def trend_check(xyz, values, axes=None, options: StationarityOptions | None = None, threads=None,

@@ -372,7 +372,9 @@ def _read_parquet(p: Path, name: str) -> RawTable:
     try:
         frame = pd.read_parquet(p)
     except Exception as exc:  # pyarrow raises many types for corrupt files
-        raise TableError(f"{p}: cannot be read as a Parquet table ({type(exc).__name__}: {exc}).") from None
+        first = str(exc).strip().splitlines()[0] if str(exc).strip() else ""
+        raise TableError(f"{p}: cannot be read as a Parquet table ({type(exc).__name__}: {shorten(first, 200)}).") \
+            from None
     frame.columns = [str(c).strip() for c in frame.columns]
     if len(frame) == 0:
         raise TableError(f"{p}: the Parquet table has no rows.")
@@ -491,8 +493,8 @@ def parse_numbers(
     status = np.full(n, OK, dtype=np.int8)
     missing = lower.isin(missing_markers).to_numpy()
     status[missing] = MISSING
-    if decimal_comma:
-        comma = text.str.fullmatch(_DECIMAL_COMMA_RE).to_numpy(dtype=bool)
+    if decimal_comma:  # "0,25", and detection limits such as "<0,01"
+        comma = text.str.fullmatch(r"[<>]?\s*" + _DECIMAL_COMMA_RE).to_numpy(dtype=bool)
         if comma.any():
             text = text.where(~comma, text.str.replace(",", ".", regex=False))
     values = np.array(pd.to_numeric(text.where(~missing, ""), errors="coerce"), dtype=np.float64)
@@ -818,6 +820,19 @@ def _clearly_text(series: pd.Series, markers, sample: int = 2000) -> bool:
     return pd.to_numeric(cells, errors="coerce").notna().mean() < 0.5
 
 
+#: Columns that drillaxis writes beside the input's own in samples.csv, composites.csv and
+#: rejected.csv: an interval column of the same name would be overwritten there, so it is left out.
+OUTPUT_COLUMNS = frozenset({"x", "y", "z", "length", "sampled", "bench", "x_from", "y_from", "z_from", "x_to",
+                            "y_to", "z_to", "table", "line", "reason"})
+
+
+def _output_name(column: str, names) -> bool:
+    """Whether an interval column's name is one drillaxis writes itself (also ``V_sampled`` and
+    ``metal_V`` for another column V of the table)."""
+    return (column in OUTPUT_COLUMNS or (column.endswith("_sampled") and column[:-8] in names)
+            or (column.startswith("metal_") and column[6:] in names))
+
+
 def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_detection,
                            forced_categories, findings):
     role_columns = set(mapping.values())
@@ -829,6 +844,7 @@ def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_de
     forced = {normalise_name(c) for c in forced_categories}
     codes = np.asarray([float(c) for c in missing_codes], dtype=np.float64)
     decimal_comma = raw.delimiter not in (None, ",")
+    names = set(raw.frame.columns)
     for column in raw.frame.columns:
         if column in role_columns:
             continue
@@ -837,6 +853,11 @@ def _interval_data_columns(raw, mapping, frame, markers, missing_codes, below_de
                 f"{raw.path}: interval column {column!r} has a name drillaxis uses for its own "
                 "columns; rename it."
             )
+        if _output_name(column, names):
+            findings.add("intervals", None, "", column, "warning",
+                         f"interval column {column!r} is left out: drillaxis writes a column of that name itself "
+                         "(positions, lengths, sampled lengths, metal); rename it in the table to keep it")
+            continue
         series = raw.frame[column]
         if normalise_name(column) in forced:
             added[column] = _as_text(series).to_numpy(dtype=object)
@@ -990,6 +1011,7 @@ def _validate(frames, dip_convention, findings: Findings, mappings: dict | None 
             "the hole has no survey rows and no collar azimuth and dip; it is taken as vertical"
             for a in has_angles[rows]])
     _all_surveys_in_error(collars, surveys, findings, has_angles)
+    _collar_against_surveys(collars, surveys, order[good[order]], has_angles & ~no_survey, dip_convention)
     notices = _rising_holes(collars, surveys, order[good[order]], has_angles & no_survey, dip_convention,
                             n_ids)
 
@@ -1069,6 +1091,40 @@ def _all_surveys_in_error(collars: _View, surveys: _View, findings: Findings, ha
         f"every survey row of this hole is in error (lines {where[r]}) and the collar has no azimuth and dip: "
         "the hole's path is unknown; fix the survey rows (with --skip-bad-rows the hole and its intervals are "
         "left out)" for r in rows])
+
+
+COLLAR_SURVEY_DEG = 10.0  # collar angles further than this from the first survey are warned about
+
+
+def _collar_against_surveys(collars: _View, surveys: _View, good_order, both, dip_convention) -> None:
+    """Warn where a collar's azimuth and dip point more than COLLAR_SURVEY_DEG away from its hole's
+    first survey station: the surveys are used, and the collar's angles would have drawn another hole."""
+    from .desurvey import direction_vectors  # local: desurvey imports numba
+
+    rows = np.flatnonzero(both)
+    codes = surveys.code[good_order]
+    if not len(rows) or not len(codes):
+        return
+    top = np.r_[True, codes[1:] != codes[:-1]]
+    first_row = np.full(int(max(codes.max(), collars.code.max())) + 1, -1, dtype=np.int64)
+    first_row[codes[top]] = good_order[top]
+    station = first_row[collars.code[rows]]
+    rows, station = rows[station >= 0], station[station >= 0]
+    if not len(rows):
+        return
+    a = direction_vectors(collars.values("azimuth")[rows], collars.values("dip")[rows], dip_convention)
+    b = direction_vectors(surveys.values("azimuth")[station], surveys.values("dip")[station], dip_convention)
+    angle = np.degrees(np.arccos(np.clip(np.einsum("ij,ij->i", a, b), -1.0, 1.0)))
+    far = angle > COLLAR_SURVEY_DEG
+    mask = np.zeros(len(collars.lines), dtype=bool)
+    mask[rows[far]] = True
+    info = dict(zip(rows[far], zip(angle[far], station[far])))
+    az, dip = collars.values("azimuth"), collars.values("dip")
+    s_az, s_dip, s_at = surveys.values("azimuth"), surveys.values("dip"), surveys.values("survey_depth")
+    collars.add(mask, "azimuth", "warning", lambda found: [
+        f"the collar's azimuth and dip ({az[r]:g} / {dip[r]:g}) point {info[r][0]:.0f} degrees away from the first "
+        f"survey row (line {surveys.lines[info[r][1]]}: {s_az[info[r][1]]:g} / {s_dip[info[r][1]]:g} at "
+        f"{s_at[info[r][1]]:g} m); the survey rows are used: check both" for r in found])
 
 
 def _rising_holes(collars: _View, surveys: _View, good_order, collar_only, dip_convention, n_ids) -> list[str]:

@@ -338,9 +338,11 @@ def draw(plotter, scene: Scene, units: str = "", pair_bar: bool = True):
     title = f"{scene.value_name} ({units})" if units else scene.value_name
     bar = dict(title=title, n_labels=5, fmt="%.3g", vertical=True, position_x=0.9, position_y=0.25, height=0.45,
                width=0.05, color="black", title_font_size=18, label_font_size=14)
-    plotter.add_mesh(b["traces"], scalars="value", cmap="viridis", scalar_bar_args=bar, name="traces")
-    plotter.add_mesh(b["composites"], scalars="value", cmap="viridis", point_size=3, render_points_as_spheres=True,
-                     show_scalar_bar=False, name="composites", opacity=0.6)
+    if b["traces"].n_points:  # a slab about a centre away from the holes holds none
+        plotter.add_mesh(b["traces"], scalars="value", cmap="viridis", scalar_bar_args=bar, name="traces")
+    if b["composites"].n_points:
+        plotter.add_mesh(b["composites"], scalars="value", cmap="viridis", point_size=3,
+                         render_points_as_spheres=True, show_scalar_bar=False, name="composites", opacity=0.6)
     plotter.add_mesh(b["ellipsoid"], color="#d9711c", opacity=0.28, smooth_shading=True, name="ellipsoid",
                      label="ellipsoid (ranges)")
     for key in [k for k in b if k.startswith("ellipsoid_structure_")]:

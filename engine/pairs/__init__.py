@@ -25,6 +25,8 @@ from .._jit import threads as numba_threads
 from ..errors import UsageError
 from . import _kernels as kernels
 
+MAX_CELLS_PER_SIDE = 2048
+
 
 class PairIndex:
     """Points sorted by search cell.
@@ -55,7 +57,10 @@ class PairIndex:
         hole = np.zeros(n, dtype=np.int64) if hole is None else np.asarray(hole, dtype=np.int64)
         depth = np.zeros(n) if depth is None else np.asarray(depth, dtype=np.float64)
         self.max_distance_m = float(max_distance_m)
-        self.cell_m = self.max_distance_m * float(cell_fraction)
+        extent = float(np.max(np.ptp(xyz, axis=0))) if n else 0.0
+        # cells are only a search aid: never more than MAX_CELLS_PER_SIDE along an axis (a tiny search
+        # distance over a wide domain would overflow the cell numbers); larger cells stay exact
+        self.cell_m = max(self.max_distance_m * float(cell_fraction), extent / MAX_CELLS_PER_SIDE)
         lo = xyz.min(axis=0) if n else np.zeros(3)
         cells = np.floor((xyz - lo) / self.cell_m).astype(np.int64)
         shape = cells.max(axis=0) + 1 if n else np.ones(3, dtype=np.int64)

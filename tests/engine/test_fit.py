@@ -144,3 +144,24 @@ def test_fit_command_writes_model_and_pattern(tmp_path):
     assert pattern["holes"] == 48 and set(pattern["model_axes"]) == {"major", "semi_major", "minor"}
     for name in ("composites.csv", "fit_variograms.csv", "rejected.csv"):
         assert (out / name).exists()
+
+
+@pytest.mark.slow
+def test_the_fit_does_not_depend_on_the_unit_of_the_values():
+    # analytic: scaling the values by s scales the variogram by s^2 and leaves the ellipsoid as it is
+    # (grades in g/t or in kg/t must give the same model). Compared as the model surface at lag
+    # vectors, since with equal semi-major and minor ranges the rotation about the major axis is free.
+    program = generate_program(recovery_spec(n_along=8, n_lines=6, hole_length_m=150.0), seed=5)
+    xyz, values, hole, depth, _ = composites_of(program)
+    rng = np.random.default_rng(0)
+    lags = rng.normal(size=(400, 3))
+    lags *= rng.uniform(1.0, 150.0, 400)[:, None] / np.linalg.norm(lags, axis=1)[:, None]
+    surfaces = {}
+    for s in (1.0, 1e-6, 1e3):
+        model = VariogramFitter(FitOptions(bootstrap=0)).fit(xyz, values * s, hole, depth, 2.0).result_.model
+        surfaces[s] = model.gamma(lags) / (s * s)
+        major = model.axes[0] if s == 1.0 else major
+        angle = np.degrees(np.arccos(min(1.0, abs(float(model.axes[0] @ major)))))
+        assert angle < 1.0, (s, angle)
+    for s, surface in surfaces.items():
+        assert np.max(np.abs(surface - surfaces[1.0]) / surfaces[1.0]) < 0.01, s

@@ -31,6 +31,7 @@ class Case:
     intervals: object = GOOD_INTERVALS
     composites: object = None  # a composites table (text) for the commands that read one
     stderr_words: tuple = ()  # must appear on stderr (warnings a piped stdout would hide)
+    findings_words: tuple = ()  # must appear in findings.csv
 
 
 def replace(text, old, new):
@@ -237,7 +238,7 @@ CASES = {
     "no positions": Case("variogram", composites="hole,x,y,z,au\nA,,0,0,1\nB,,1,0,2\n", options=["--value", "au"],
                          code=1, words=("no composite",)),
     "log of zeros": Case("variogram", composites=composites_text(values=lambda n: np.arange(n) % 4 * 1.0),
-                         options=["--value", "au", "--transform", "log"], code=2, words=("above zero",)),
+                         options=["--value", "au", "--transform", "log"], code=2, words=("at or below zero",)),
     "directions out of range": Case("variogram", composites=VARIED, options=["--value", "au", "--directions",
                                                                             "400/100"], code=2,
                                     words=("TREND/PLUNGE",)),
@@ -253,6 +254,65 @@ CASES = {
                             code=2, words=("--dask",)),
     "model unreadable": Case("view", composites=VARIED, options=["--model", "MODEL"], code=2,
                              words=("cannot read a model",)),
+    "model without structures": Case("view", composites=VARIED, options=["--model", "MODEL:no structure"], code=2,
+                                     words=("no structure",)),
+    "model with zero axes": Case("view", composites=VARIED, options=["--model", "MODEL:zero axes"], code=2,
+                                 words=("orthonormal",)),
+    "model with a negative range": Case("view", composites=VARIED, options=["--model", "MODEL:negative range"],
+                                        code=2, words=("above zero",)),
+    "centre far from the data": Case("view", composites=VARIED, options=["--model", "MODEL:good", "--centre",
+                                                                         "1e30,0,0"], code=2,
+                                     words=("outside the data",)),
+    # names that drillaxis writes, and inputs it would overwrite
+    "interval column x": Case("composite", intervals=GOOD_INTERVALS.replace("au,lith", "au,x").replace(
+        "SCHIST", "1").replace("VEIN", "2"), options=["--length", "1"], code=0, words=("1 warning",),
+        findings_words=("'x' is left out",)),
+    "interval column length": Case("desurvey", intervals=GOOD_INTERVALS.replace("lith", "length").replace(
+        "SCHIST", "1").replace("VEIN", "2"), code=0, findings_words=("'length' is left out",)),
+    "interval column au_sampled": Case("composite", intervals=GOOD_INTERVALS.replace("lith", "au_sampled").replace(
+        "SCHIST", "1").replace("VEIN", "2"), options=["--length", "1"], code=0,
+        findings_words=("'au_sampled' is left out",)),
+    "input named like an output": Case("desurvey", intervals="INSIDE:samples.csv", code=2,
+                                       words=("would be overwritten",)),
+    # compositing options that were taken silently
+    "cap given twice": Case("composite", options=["--length", "1", "--cap", "au=5", "--cap", "AU=50"], code=2,
+                            words=("capped twice",)),
+    "bench base beyond coordinates": Case("composite", options=["--bench", "5", "--bench-base", "1e300"], code=2,
+                                          words=("--bench-base",)),
+    "length with whole run": Case("composite", options=["--length", "2", "--whole-run"], code=2,
+                                  words=("ways of compositing",)),
+    "blank domain cells": Case("composite", intervals=GOOD_INTERVALS.replace("A,3,5,0.75,VEIN", "A,3,5,0.75,"),
+                               options=["--length", "1", "--domain", "lith"], code=0,
+                               words=("no value in the domain column",)),
+    "column read as a category, asked as a cap": Case(
+        "composite", intervals=replace(GOOD_INTERVALS, "A,0,1,0.5", "A,0,1,NS"), options=["--length", "1", "--cap",
+                                                                                          "au=3"],
+        code=2, words=("read as a category",)),
+    "category option naming no column": Case("check", options=["--category", "nosuch"], code=2,
+                                             words=("--category",)),
+    "category option naming a role": Case("check", options=["--category", "from"], code=2, words=("--category",)),
+    "detection limits with decimal commas": Case(
+        "check", intervals="hole;from;to;au\nA;0;1;<0,01\nA;1;2,5;>10,5\nB;0;2;2,0\n", code=0,
+        words=("below the detection limit", "above the upper detection limit")),
+    "collar angles far from the surveys": Case(
+        "check", collars="hole,x,y,z,depth,azimuth,dip\nA,100,200,50,30,300,-60\nB,110,200,50,20,0,-90\n",
+        code=0, words=("degrees away from the first survey row", "the survey rows are used")),
+    # composites files
+    "numeric domain codes stay text": Case("variogram", composites=VARIED.replace("LODE", "02").replace(
+        "WASTE", "01"), options=["--value", "au", "--domain", "Zone=02", "--omni"], code=0),
+    "two columns differing in case": Case("variogram", composites=VARIED.replace("hole,from,to,x,y,z,au,Zone",
+                                                                                 "hole,from,to,x,y,z,au,AU"),
+                                          options=["--value", "Au"], code=2, words=("several columns",)),
+    "constant indicator": Case("variogram", composites=VARIED, options=["--value", "au", "--indicator", "1e9"],
+                               code=1, words=("do not vary",)),
+    "no pair in any lag": Case("variogram", composites=VARIED, options=["--value", "au", "--lag", "1e6", "--omni"],
+                               code=1, words=("no pair",)),
+    "empty directions": Case("variogram", composites=VARIED, options=["--value", "au", "--directions", ""], code=2,
+                             words=("at least one direction",)),
+    "dask with too many workers": Case("variogram", composites=VARIED, options=["--value", "au", "--omni", "--dask",
+                                                                                "local:100000"], code=2,
+                                       words=("1 to 64",)),
+    "out is empty": Case("check", options=["--out", ""], code=2, words=("--out",)),
 }
 
 # ---- option values refused where they are parsed: exit 2, naming the option and its range
@@ -306,8 +366,27 @@ BAD_OPTIONS = {
 }
 
 
+GOOD_MODEL = {"schema": "drillaxis.model/1", "variable": "au", "domain": None, "nugget": 0.1,
+              "structures": [{"shape": "spherical", "sill": 0.9, "ranges": {"major": 60.0, "semi_major": 40.0,
+                                                                             "minor": 10.0}}],
+              "axes": {"major": [1.0, 0.0, 0.0], "semi_major": [0.0, 1.0, 0.0], "minor": [0.0, 0.0, 1.0]},
+              "fit": {"lag_m": "ten"}}
+MODELS = {
+    "good": GOOD_MODEL,
+    "no structure": {**GOOD_MODEL, "structures": []},
+    "zero axes": {**GOOD_MODEL, "axes": {n: [0.0, 0.0, 0.0] for n in ("major", "semi_major", "minor")}},
+    "negative range": {**GOOD_MODEL, "structures": [{"shape": "spherical", "sill": 0.9, "ranges": {
+        "major": 60.0, "semi_major": -40.0, "minor": 10.0}}]},
+}
+
+
 def write(tmp_path, name, content):
     path = tmp_path / f"{name}.csv"
+    if isinstance(content, str) and content.startswith("INSIDE:"):  # inside the output folder
+        path = tmp_path / "out" / content.split(":", 1)[1]
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_text(GOOD_INTERVALS, encoding="utf-8")
+        return path
     if content == "FOLDER":
         path.mkdir()
     elif content == "MISSING":
@@ -352,16 +431,25 @@ def test_hostile_case(name, tmp_path, capsys):
         argv = [case.command, "--composites", write(tmp_path, "composites", case.composites)]
         if case.command == "view":
             model = tmp_path / "model.json"
-            model.write_text('{"schema": "drillaxis.model/1", "nugget": ')
-            options = [str(model) if o == "MODEL" else o for o in case.options]
-            argv += ["--value", "au", *options]
+            options = []
+            for option in case.options:
+                if option == "MODEL":
+                    model.write_text('{"schema": "drillaxis.model/1", "nugget": ')
+                    option = str(model)
+                elif option.startswith("MODEL:"):
+                    model.write_text(json.dumps(MODELS[option.split(":", 1)[1]]))
+                    option = str(model)
+                options.append(option)
+            argv += ["--value", "au", "--size", "320", "240", *options]
         else:
             argv += case.options
     else:
         argv = [case.command, "--collars", write(tmp_path, "collars", case.collars),
                 "--surveys", write(tmp_path, "surveys", case.surveys),
                 "--intervals", write(tmp_path, "intervals", case.intervals), *case.options]
-    code, stdout, stderr = run([*argv, "--out", out], capsys)
+    if "--out" not in argv:
+        argv += ["--out", out]
+    code, stdout, stderr = run(argv, capsys)
     assert code == case.code, (stdout[-2000:], stderr[-2000:])
     assert "Traceback" not in stderr
     assert len(stdout) + len(stderr) < 100_000  # nothing of megabytes echoed
@@ -369,6 +457,10 @@ def test_hostile_case(name, tmp_path, capsys):
         assert words in stdout + stderr, (words, stdout[-2000:], stderr[-2000:])
     for words in case.stderr_words:
         assert words in stderr, (words, stderr[-2000:])
+    if case.findings_words:
+        problems = " ".join(pd.read_csv(out / "findings.csv")["problem"].astype(str))
+        for words in case.findings_words:
+            assert words in problems, (words, problems[-2000:])
     if "500 value columns" in name:
         assert "Warning" not in stderr
     if code == 0 and case.command in ("desurvey", "composite"):
