@@ -14,7 +14,7 @@ import sys
 import time
 from pathlib import Path
 
-from .errors import DrillaxisError, UsageError, shorten
+from .errors import DrillaxisError, FitError, UsageError, shorten
 
 DESCRIPTION = (
     "drillaxis: validate and desurvey drillhole tables, composite them, and model the 3D variogram of "
@@ -1262,8 +1262,12 @@ def cmd_fit(args, console: Console) -> int:
 
             trend, fitted = detrend(data.xyz, values, args.detrend)
             values = values - fitted
-        fitted = _fit_and_check(data.xyz, values, data.hole, data.depth, data.length, args, out, step,
-                                data.domain_text, detrend=trend)
+        try:
+            fitted = _fit_and_check(data.xyz, values, data.hole, data.depth, data.length, args, out, step,
+                                    data.domain_text, detrend=trend)
+        except FitError as exc:  # say which data could not be fitted
+            where = f" in {data.domain_text}" if data.domain_text else ""
+            raise FitError(f"{args.composites}, {data.value}{where}: {exc}") from None
     _model_summary(fitted["model"], out, console)
     console.say(f"  caution: {CAUTION}")
     _left_out_summary(data, console)

@@ -420,7 +420,8 @@ def match_columns(raw: RawTable, explicit: dict[str, str] | None = None) -> dict
     found = ", ".join(repr(c[:40]) for c in raw.frame.columns)
     mapping: dict[str, str] = {}
     problems = []
-    for role in required + optional:
+    # roles named with --column first, so that a column they name is not taken by another role's synonym
+    for role in sorted(required + optional, key=lambda r: r not in explicit):
         if role in explicit and normalise_name(explicit[role]) in by_norm:
             name = explicit[role]
             if role == "dip" and normalise_name(name) in INCLINATION_NAMES:
