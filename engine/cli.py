@@ -485,9 +485,6 @@ def _checked_tables(args, folder, console: Console, need_intervals: bool = True,
         check(tables)
     folder.clear()
     _write_findings(tables, _rows_would_reject(tables), folder.path)
-    if len(tables.findings):
-        console.say(f"findings: {tables.error_count} error(s), {tables.warning_count} warning(s) -> "
-                    f"{folder.path / 'findings.csv'}")
     for notice in tables.notices:
         console.warn(notice)
     usable, rejected = tables.usable(skip_bad_rows=getattr(args, "skip_bad_rows", False))
@@ -500,6 +497,13 @@ def _checked_tables(args, folder, console: Console, need_intervals: bool = True,
         raise ValidationError(f"no interval row is left to work with: all {len(tables.intervals)} were rejected "
                               f"(reasons in {folder.path / 'rejected.csv'}).")
     return usable, rejected
+
+
+def _findings_line(tables, out: Path, console: Console):
+    """One line on the console when the tables hold findings (check prints them in full)."""
+    if len(tables.findings):
+        console.say(f"findings: {tables.error_count} error(s), {tables.warning_count} warning(s) -> "
+                    f"{out / 'findings.csv'}")
 
 
 def _rows_would_reject(tables):
@@ -644,6 +648,7 @@ def cmd_desurvey(args, console: Console) -> int:
         step("reading and validating")
         tables, rejected = _checked_tables(args, folder, console, need_intervals=False)
         trace, traces, samples = _desurvey(tables, args, out, console, step)
+    _findings_line(tables, out, console)
     if len(rejected):
         console.say(f"{len(rejected)} row(s) left out -> {out / 'rejected.csv'}")
     _desurvey_summary(trace, traces, samples, args.method, out, console)
@@ -766,6 +771,7 @@ def cmd_composite(args, console: Console) -> int:
         step(names[0])
         tables, rejected = _checked_tables(args, folder, console, check=check)
         result = _composite(tables, rejected, options, args, out, step)
+    _findings_line(tables, out, console)
     if len(rejected):
         console.say(f"{len(rejected)} input row(s) left out -> {out / 'rejected.csv'}")
     _composite_summary(result, out, console)
@@ -1496,6 +1502,7 @@ def cmd_run(args, console: Console) -> int:
         inputs = {"collars": args.collars, "surveys": args.surveys, "intervals": args.intervals}
         st, fitted = _run_workflow(tables, rejected, result, args, out, step, args.value, args.domain, inputs)
     _stationarity_summary(st, out, console)
+    _findings_line(tables, out, console)
     _composite_summary(result, out, console)
     _model_summary(fitted["model"], out, console)
     _scene_or_skip(fitted["scene"], out, console)

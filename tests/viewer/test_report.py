@@ -47,11 +47,11 @@ def run(tmp_path_factory):
                "--bootstrap", "5", "--skip-bad-rows", "--out", str(out)]
     done = subprocess.run(command, capture_output=True, text=True, cwd=ROOT)
     assert done.returncode == 0, done.stderr
-    return out, done.stdout + done.stderr
+    return out, done.stdout, done.stderr
 
 
 def test_the_run_writes_the_report_and_the_stationarity_file(run):
-    out, _ = run
+    out = run[0]
     st = json.loads((out / "stationarity.json").read_text())
     assert st["variable"] == "au_gpt"
     for name in ("trend", "proportional_effect", "mixture", "sill"):  # the contract's four, each with a sentence
@@ -63,7 +63,7 @@ def test_the_run_writes_the_report_and_the_stationarity_file(run):
 
 
 def test_the_stationarity_warning_leads_model_json_the_console_and_the_report(run):
-    out, stdout = run
+    out, stdout, stderr = run
     model = json.loads((out / "model.json").read_text())
     assert list(model)[:2] == ["schema", "warnings"]
     assert model["warnings"] and model["warnings"][0].startswith("Stationarity: Trend in the mean along east")
@@ -74,8 +74,8 @@ def test_the_stationarity_warning_leads_model_json_the_console_and_the_report(ru
     assert lead < page.index('<section id="summary">')
     assert page.index("Stationarity: Trend in the mean along east", lead) < page.index("</ul>", lead)
     # every warning the console printed is in model.json's warnings, and leads the report
-    printed = [re.split(r"WARNING(?: \(stationarity\))?: ", line, maxsplit=1)[1] for line in stdout.splitlines()
-               if "WARNING" in line]
+    printed = [re.split(r"WARNING(?: \(stationarity\))?: ", line, maxsplit=1)[1]
+               for line in (stdout + stderr).splitlines() if "WARNING" in line]
     assert printed
     for text in printed:
         assert any(w.endswith(text) for w in model["warnings"]), text
@@ -83,7 +83,7 @@ def test_the_stationarity_warning_leads_model_json_the_console_and_the_report(ru
 
 
 def test_the_report_is_self_contained_and_escapes_data_text(run):
-    out, _ = run
+    out = run[0]
     page = (out / "report.html").read_text(encoding="utf-8")
     sources = re.findall(r'\bsrc="([^"]*)"', page)
     links = re.findall(r'\bhref="([^"]*)"', page)
@@ -100,7 +100,7 @@ def test_the_report_is_self_contained_and_escapes_data_text(run):
 
 def test_chromium_renders_the_report_with_no_network_request(run, tmp_path):
     browser_or_skip()
-    out, _ = run
+    out = run[0]
     proxy = Proxy()
     try:
         # the check can fail: a page that asks for two outside files is caught
@@ -122,7 +122,7 @@ def test_chromium_renders_the_report_with_no_network_request(run, tmp_path):
 
 def test_each_section_renders_alone_for_the_screenshots(run, tmp_path):
     browser_or_skip()
-    out, _ = run
+    out = run[0]
     url = (out / "report.html").resolve().as_uri()
     for key in ("stationarity", "ellipsoid"):
         shot = tmp_path / f"{key}.png"
