@@ -196,6 +196,9 @@ def _fit_options(parser: argparse.ArgumentParser):
                        help="nested structures (default auto: one or two, by the Bayesian information criterion)")
     group.add_argument("--transform", choices=("none", "normal-score", "log"), default="none",
                        help="transform the values before fitting (default: none)")
+    group.add_argument("--decluster-cell", type=_number(0, 1e6), metavar="M",
+                       help="cell size of the cell declustering, metres (default: chosen from a scan of sizes up to "
+                            "the spacing of the sparse drilling; 0: no declustering, every composite weighs one)")
     group.add_argument("--bootstrap", type=_number(0, 10000, integer=True), default=50, metavar="N",
                        help="hole-wise bootstrap replicates for the uncertainty (default 50; 0 leaves it out)")
     group.add_argument("--bootstrap-block", type=_number(0, 1e6), metavar="M",
@@ -838,6 +841,15 @@ class Composites:
         return f"{self.domain_column}={self.domain_value}" if self.domain_column else None
 
     @property
+    def ends(self):
+        """From and to of each composite used (n, 2), or None."""
+        import numpy as np
+
+        if {"from", "to"} <= set(self.rows.columns):
+            return self.rows[["from", "to"]].to_numpy(dtype=np.float64)
+        return None
+
+    @property
     def hole_names(self):
         import pandas as pd
 
@@ -973,7 +985,7 @@ def cmd_variogram(args, console: Console) -> int:
     return 0
 
 
-def _transformed(values, kind: str, name: str, residuals: bool = False):
+def _transformed(values, kind: str, name: str, residuals: bool = False, weights=None):
     """``values`` under ``--transform`` (none, log or normal-score); bad usage when the log of a value
     at or below zero is asked for, with the count and the column."""
     import numpy as np
@@ -989,7 +1001,7 @@ def _transformed(values, kind: str, name: str, residuals: bool = False):
                                             "replace those values (for example by half the detection limit)") + ".")
         return np.log(values)
     if kind == "normal-score":
-        return normal_scores(values)
+        return normal_scores(values, weights)
     return values
 
 
@@ -1006,9 +1018,10 @@ def _trend_plunge(text, option):
 
 
 def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, domain_text=None, lead=None,
-                   detrend=None):
+                   detrend=None, ends=None, samples=None, effective_samples=None):
     """Fit the model, check the pattern, write model.json, pattern.json, fit_variograms.csv,
-    variograms.csv and volume.npz. ``lead``: warnings that open model.json (stationarity flags);
+    variograms.csv and volume.npz. ``ends``, ``samples``, ``effective_samples``: for the nugget (see
+    VariogramFitter.fit). ``lead``: warnings that open model.json (stationarity flags);
     ``detrend``: the trend whose residuals ``values`` are. Returns what the report needs."""
     import numpy as np
     import pandas as pd
@@ -1017,11 +1030,23 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, doma
     from .outputs import write_csv, write_json
     from .pattern import check_model, drill_pattern
 
-    values = _transformed(values, args.transform, args.value, residuals=bool(detrend))
-    options = FitOptions(lag_m=args.lag, lags=args.lags, structures=args.structures, bootstrap=args.bootstrap,
+    from .decluster import decluster
+
+    cell = getattr(args, "decluster_cell", None)
+    if cell == 0:
+        declustering = decluster(xyz, values, hole, cell_m=None, sizes_m=[])
+    else:
+        declustering = decluster(xyz, values, hole, cell_m=cell)
+    values = _transformed(values, args.transform, args.value, residuals=bool(detrend), weights=declustering.weights)
+    options = FitOptions(lag_m=args.lag, lags=args.lags,
+                         structures=args.structures, bootstrap=args.bootstrap,
                          bootstrap_block_m=getattr(args, "bootstrap_block", None), seed=args.seed,
                          threads=args.threads)
-    fitter = VariogramFitter(options).fit(xyz, values, hole, depth, composite_length=length, progress=step)
+    if args.transform != "none" or detrend:  # the samples' values are not those fitted: the composites' own nugget
+        samples = effective_samples = None
+    fitter = VariogramFitter(options).fit(xyz, values, hole, depth, composite_length=length, progress=step,
+                                          ends=ends, samples=samples, effective_samples=effective_samples,
+                                          weights=declustering.weights)
     result = fitter.result_
     model = result.model
     step("checking the drill pattern")
@@ -1036,6 +1061,8 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, doma
     # (every warning the console prints)
     data = {"schema": fitted.pop("schema"), "warnings": warnings, **fitted}
     data["transform"] = args.transform
+    data["declustering"] = {"values": "residuals from the trend" if detrend else "composites",
+                            **declustering.to_json()}
     if detrend:
         data["detrend"] = {k: detrend[k] for k in ("kind", "terms", "coefficients", "centre", "unit_m", "r_squared")}
         data["detrend"]["note"] = "the model is of the residuals: value minus this trend"
@@ -1098,8 +1125,15 @@ def _model_summary(data: dict, out: Path, console: Console, printed=("Stationari
     if data.get("detrend"):
         console.say(f"model of the residuals from a {data['detrend']['kind']} trend (r squared "
                     f"{data['detrend']['r_squared']:.3f})")
-    console.say(f"model of {data['variable']}: variance {data['variance']:.4g}, nugget {data['nugget']:.4g}, "
-                f"{data['pairs_used']:,} pairs along the principal axes -> {out / 'model.json'}")
+    support = data.get("nugget_support") or {}
+    sample = support.get("sample_support")
+    console.say(f"model of {data['variable']}: variance {data['variance']:.4g}, nugget {data['nugget']:.4g} at "
+                "composite support" + (f" ({sample:.4g} at sample support)" if sample is not None else "") +
+                f", {data['pairs_used']:,} pairs along the principal axes -> {out / 'model.json'}")
+    d = data.get("declustering") or {}
+    if d.get("cell_m"):
+        console.say(f"  declustered (cells of {d['cell_m']:.1f} m): mean {d['mean']:.4g}, variance "
+                    f"{d['variance']:.4g}; naive: mean {d['naive_mean']:.4g}, variance {d['naive_variance']:.4g}")
     for s in data["structures"]:
         r = s["ranges"]
         console.say(f"  {s['shape']} sill {s['sill']:.4g}, ranges {r['major']:.1f} / {r['semi_major']:.1f} / "
@@ -1250,9 +1284,9 @@ def _options_of(args) -> dict:
 def cmd_fit(args, console: Console) -> int:
     folder = _out_dir(args)
     out = folder.path
-    names = ["reading composites", "searching directions", "fanning about the major axis",
-             "refining the axes on the variogram volume", "fitting the model", f"bootstrap of {args.bootstrap} "
-             "replicates", "checking the drill pattern"]
+    names = ["reading composites", "the nugget down the holes", "searching directions",
+             "fanning about the major axis", "refining the axes on the variogram volume", "fitting the model",
+             f"bootstrap of {args.bootstrap} replicates", "checking the drill pattern"]
     from .provenance import provenance
 
     with console.stages(names) as step:
@@ -1270,7 +1304,7 @@ def cmd_fit(args, console: Console) -> int:
             values = values - fitted
         try:
             fitted = _fit_and_check(data.xyz, values, data.hole, data.depth, data.length, args, out, step,
-                                    data.domain_text, detrend=trend)
+                                    data.domain_text, detrend=trend, ends=data.ends)
         except FitError as exc:  # say which data could not be fitted
             where = f" in {data.domain_text}" if data.domain_text else ""
             raise FitError(f"{args.composites}, {data.value}{where}: {exc}") from None
@@ -1433,8 +1467,10 @@ def _run_workflow(tables, rejected, result, args, out, step, value, domain, inpu
         labels = (result.composites[value].to_numpy(dtype=np.float64), result.composites[data.domain_column])
     st, residuals = _stationarity(xyz, values, hole, args, out, data.rows, domain_text, labels)
     lead = [f"Tables: {text}" for text in tables.notices] + _lead_warnings(st)
+    samples, effective = _samples_behind(tables, data)
     fitted = _fit_and_check(xyz, values if residuals is None else residuals, hole, data.depth, data.length, args, out,
-                            step, domain_text, lead=lead, detrend=st.get("detrend"))
+                            step, domain_text, lead=lead, detrend=st.get("detrend"), ends=data.ends,
+                            samples=samples, effective_samples=effective)
     step("writing the report")
     from .model import Model
     from .outputs import write_json
@@ -1464,10 +1500,31 @@ def _run_workflow(tables, rejected, result, args, out, step, value, domain, inpu
     return st, fitted
 
 
-RUN_STAGES = ["checking stationarity", "searching directions", "fanning about the major axis",
-              "refining the axes on the variogram volume", "fitting the model", "bootstrap",
-              "checking the drill pattern", "drawing the 3D scene",
-              "writing the report"]
+RUN_STAGES = ["checking stationarity", "the nugget down the holes", "searching directions",
+              "fanning about the major axis", "refining the axes on the variogram volume", "fitting the model",
+              "bootstrap", "checking the drill pattern", "drawing the 3D scene", "writing the report"]
+
+
+def _samples_behind(tables, data: "Composites"):
+    """The samples of the value (and domain) behind the composites, numbered by the composites' holes,
+    and each composite's effective number of samples; (None, None) when the composites do not say."""
+    import numpy as np
+    import pandas as pd
+
+    from .nugget import Intervals
+
+    column = f"{data.value}_effective_samples"
+    if column not in data.rows.columns or data.value not in tables.intervals.columns:
+        return None, None
+    intervals = tables.intervals
+    if data.domain_column and data.domain_column in intervals.columns:
+        intervals = intervals[intervals[data.domain_column].astype(str).to_numpy() == data.domain_value]
+    code = pd.Index(data.hole_names).get_indexer(intervals["hole"])
+    keep = code >= 0
+    samples = Intervals(code[keep], intervals["from"].to_numpy(dtype=np.float64)[keep],
+                        intervals["to"].to_numpy(dtype=np.float64)[keep],
+                        intervals[data.value].to_numpy(dtype=np.float64)[keep])
+    return samples, data.rows[column].to_numpy(dtype=np.float64)
 
 
 RUN_COMPOSITING = dict(residual="merge", merge_below=0.5, equal=False, min_coverage=0.5, density=None,
@@ -1519,8 +1576,11 @@ def _scene_or_skip(drawn: dict, out: Path, console: Console):
         _scene_summary(drawn, out, console)
 
 
-def _truth_against_fit(truth: dict, data: dict, console: Console):
-    """Axis errors (degrees) and range ratios of a fitted model.json against a truth model."""
+def _truth_against_fit(truth: dict, data: dict, console: Console, share_per_composite=None):
+    """Axis errors (degrees) and range ratios of a fitted model.json against a truth model; the nugget
+    against the truth's carried to composite support (its sample nugget times ``share_per_composite``,
+    the mean of 1 / effective samples over the composites: the variance of a weighted mean of
+    independent draws)."""
     import numpy as np
 
     from .model import AXIS_NAMES, Model
@@ -1533,9 +1593,16 @@ def _truth_against_fit(truth: dict, data: dict, console: Console):
         ratio = f.effective_range(f.axes[a]) / t.effective_range(t.axes[a])
         parts.append(f"{name.replace('_', '-')} axis {angle:.1f} degrees off, range ratio {ratio:.2f}")
     console.say("  " + "; ".join(parts))
-    console.say(f"  nugget share of the sill: fitted {f.nugget / f.sill:.2f}, truth {t.nugget / t.sill:.2f} (the "
-                "truth is a point model: 2 m composites average the sample noise, and a bounded domain shows "
-                "less than the full sill, so fitted nugget and ranges come out lower)")
+    if share_per_composite is not None:
+        carried = t.nugget * share_per_composite
+        console.say(f"  nugget at composite support: fitted {f.nugget:.3f}, truth {carried:.3f} (the truth's sample "
+                    f"nugget {t.nugget:.3f} x {share_per_composite:.3f}, the mean of 1 / effective samples per "
+                    "composite); at sample support: fitted "
+                    + (f"{data['nugget_support']['sample_support']:.3f}"
+                       if (data.get("nugget_support") or {}).get("sample_support") is not None else "-")
+                    + f", truth {t.nugget:.3f}")
+    else:
+        console.say(f"  nugget share of the sill: fitted {f.nugget / f.sill:.2f}, truth {t.nugget / t.sill:.2f}")
     console.say("  ranges compared: the distance at which each model reaches 95% of its sill along each axis")
 
 
@@ -1585,7 +1652,9 @@ def cmd_demo(args, console: Console) -> int:
                 f"plane dip direction {o['plane']['dip_direction']:.1f} dip {o['plane']['dip']:.1f}; "
                 f"pitch {o['pitch']:.1f}")
     _model_summary(data, out, console)
-    _truth_against_fit(truth["model"], data, console)
+    fresh = result.composites[result.composites["domain"].astype(str) == "FRESH"]["au_gpt_effective_samples"]
+    fresh = fresh[fresh > 0]
+    _truth_against_fit(truth["model"], data, console, float((1.0 / fresh).mean()) if len(fresh) else None)
     _scene_or_skip(fitted["scene"], out, console)
     console.say(f"report -> {out / 'report.html'}")
     console.say(f"  caution: {CAUTION}")

@@ -144,7 +144,8 @@ class CompositeResult:
 @jit_parallel
 def _accumulate(run_samples, run_composites, s_from, s_to, weight, values, weighted, c_from, c_to):
     """Per composite: sampled length of any value, and per value column the sampled length, the
-    mass (sum of overlap x weight) and the metal (sum of overlap x weight x value)."""
+    mass (sum of overlap x weight), the metal (sum of overlap x weight x value) and the sum of the
+    squared masses of the samples (for the effective number of samples)."""
     n_runs = run_samples.shape[0] - 1
     n_values = values.shape[1]
     n_comp = c_from.shape[0]
@@ -152,6 +153,7 @@ def _accumulate(run_samples, run_composites, s_from, s_to, weight, values, weigh
     sampled = np.zeros((n_comp, n_values))
     mass = np.zeros((n_comp, n_values))
     metal = np.zeros((n_comp, n_values))
+    mass2 = np.zeros((n_comp, n_values))
     for r in numba.prange(n_runs):
         s = run_samples[r]
         s_end = run_samples[r + 1]
@@ -172,8 +174,9 @@ def _accumulate(run_samples, run_composites, s_from, s_to, weight, values, weigh
                             sampled[c, v] += overlap
                             mass[c, v] += w
                             metal[c, v] += w * x
+                            mass2[c, v] += w * w
                 k += 1
-    return coverage, sampled, mass, metal
+    return coverage, sampled, mass, metal, mass2
 
 
 # --------------------------------------------------------------------------------------------
@@ -372,7 +375,7 @@ def composite(intervals: pd.DataFrame, value_columns, options: CompositeOptions,
     if residual is None:
         residual = np.zeros(len(c_run), dtype=bool)
     run_composites = np.searchsorted(c_run, np.arange(len(top) + 1)).astype(np.int64)
-    coverage, sampled, mass, metal = _accumulate(
+    coverage, sampled, mass, metal, mass2 = _accumulate(
         run_samples, run_composites, np.ascontiguousarray(d_from), np.ascontiguousarray(d_to),
         np.ascontiguousarray(weight, dtype=np.float64), np.ascontiguousarray(values), weighted,
         np.ascontiguousarray(c_from), np.ascontiguousarray(c_to),
@@ -414,6 +417,10 @@ def composite(intervals: pd.DataFrame, value_columns, options: CompositeOptions,
             np.floor((z_mid - options.bench_base_m) / options.bench_height_m) + 0.5)
     for v, column in enumerate(value_columns):
         columns[f"{column}_sampled"] = sampled[:, v]
+    with np.errstate(invalid="ignore", divide="ignore"):  # (sum w)^2 / sum w^2: 1 for one sample, n for n equal
+        effective = np.where(mass2 > 0, mass * mass / mass2, np.nan)
+    for v, column in enumerate(value_columns):
+        columns[f"{column}_effective_samples"] = effective[:, v]
     columns.update({"x_from": start[:, 0], "y_from": start[:, 1], "z_from": start[:, 2],
                     "x_to": end[:, 0], "y_to": end[:, 1], "z_to": end[:, 2]})
     out = pd.DataFrame(columns)

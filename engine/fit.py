@@ -2,7 +2,9 @@
 
 The steps, each from the pair engine in few passes:
 
-1. Nugget: the down-hole variogram at its first lags, extrapolated to zero separation.
+1. Nugget: fitted to the samples' down-hole variogram (before compositing, at their own lengths) with
+   shapes averaged over the samples' intervals, and carried to the composites' support as a pure
+   nugget averages (engine/nugget.py); it is held fixed in the steps below.
 2. Global search: a Fibonacci set of directions over the lower hemisphere, each with its directional
    variogram; a direction's score is the mean of its variogram over the lags, over the variance
    (lower: more continuous), smoothed over the neighbouring directions. The major axis is the best.
@@ -10,8 +12,11 @@ The steps, each from the pair engine in few passes:
 4. A first fit of sills and ranges on the three principal directional variograms (axes fixed), then a
    local refinement of the three rotation angles together with the sills and ranges against the
    variogram volume.
-5. The final fit: the three principal directional variograms along the refined axes, fitted jointly
-   by weighted least squares (weights: pairs over mean lag distance) with sills >= 0 and ranges
+5. The final fit: the three principal directional variograms along the refined axes and the
+   down-hole variogram (lags of one composite, along each hole: it sees ranges shorter than the hole
+   spacing in the direction of the holes), fitted jointly by weighted least squares (weights: pairs
+   over mean lag distance; the down-hole lags weigh, together, as much as one principal direction)
+   with sills >= 0 and ranges
    major >= semi-major >= minor, none longer than the longest lag (no pair could show it); one or
    two structures and the shape chosen by the Bayesian information criterion.
 6. Uncertainty: a hole-wise bootstrap repeats steps 1, 4 and 5 with holes resampled with replacement
@@ -27,6 +32,7 @@ from dataclasses import asdict, dataclass, field
 import numpy as np
 
 from .errors import FitError
+from .framevolume import FrameVolume, hole_frame, hole_vectors, start_orientations
 from .model import AXIS_NAMES, Model, Structure
 from .orientation import trend_plunge
 from .pairs import PairIndex
@@ -125,29 +131,21 @@ def downhole_experimental(acc) -> Experimental:
     return _line_sets(acc, acc.plan.layout[k.L_DH_SLOT], acc.plan.sets.downhole.count)
 
 
-def nugget_from_downhole(ex: Experimental, min_pairs: int) -> float:
-    """The down-hole variogram's first supported lags (up to three) extrapolated to zero by a
-    pair-weighted straight line; clipped to [0, the first supported value]."""
-    ok = np.flatnonzero(ex.supported(min_pairs))[:3]
-    if len(ok) == 0:
-        return 0.0
-    if len(ok) == 1:
-        return float(max(0.0, 0.5 * ex.gamma[ok[0]]))
-    d, g, w = ex.distance[ok], ex.gamma[ok], ex.pairs[ok]
-    slope, intercept = np.polyfit(d, g, 1, w=np.sqrt(w))
-    return float(np.clip(intercept, 0.0, g[0]))
-
-
 def continuity_scores(experimentals, variance, min_pairs) -> np.ndarray:
-    """Mean gamma over the lags divided by the variance, lags without support filled from their
-    neighbours in the same direction (lower: more continuous; NaN: under three supported lags)."""
+    """Mean gamma over the lags divided by the variance (lower: more continuous; NaN: under three
+    supported lags). A lag without support between supported ones is filled from its neighbours; a lag
+    beyond the last supported one counts at the variance or the last value, whichever is higher (no pair
+    shows continuity there), and one before the first supported lag at the first value: a direction whose
+    pairs are all short must not look continuous for it."""
     out = np.full(len(experimentals), np.nan)
     for s, ex in enumerate(experimentals):
         ok = ex.supported(min_pairs)
         if ok.sum() < 3:
             continue
         lags = np.arange(len(ex.gamma))
+        last = int(np.flatnonzero(ok)[-1])
         filled = np.interp(lags, lags[ok], ex.gamma[ok])
+        filled[last + 1:] = max(float(variance), float(ex.gamma[last]))
         out[s] = filled.mean() / variance
     return out
 
@@ -278,6 +276,32 @@ def _principal_data(experimentals, axes, min_pairs, tolerance_deg=None):
     return np.concatenate(h), np.concatenate(g), w / w.mean(), np.concatenate(which)
 
 
+def hole_directions(xyz, hole, count: int = 24) -> np.ndarray:
+    """Unit vectors (count, 3) down the holes, each from a hole's shallowest to its deepest composite
+    (holes spread evenly over the sorted ids, repeated when there are fewer than ``count``)."""
+    v = hole_vectors(xyz, hole)
+    if len(v) == 0:
+        return np.tile([0.0, 0.0, -1.0], (count, 1))
+    pick = np.linspace(0, len(v) - 1, count).round().astype(np.int64)
+    return v[pick]
+
+
+def _downhole_data(downhole: Experimental, directions, min_pairs, total_weight, cone: bool):
+    """The down-hole variogram's supported lags as lag vectors along the holes (m, K, 3), over the
+    holes' ``directions`` (K, 3), or along their mean direction (m, 3) without ``cone``; values, and
+    weights pairs / distance scaled to sum to ``total_weight``."""
+    ok = downhole.supported(min_pairs) & (downhole.distance > 0)
+    d = downhole.distance[ok]
+    if cone:
+        h = d[:, None, None] * directions[None, :, :]
+    else:
+        mean = directions.mean(axis=0)
+        h = d[:, None] * (mean / max(np.linalg.norm(mean), 1e-12))[None, :]
+    w = downhole.pairs[ok] / d
+    w = w * (total_weight / w.sum()) if w.sum() > 0 else w
+    return h, downhole.gamma[ok], w
+
+
 def _starts(experimentals, variance, nugget, n_struct, reach):
     """Starting sills and ranges: where each principal variogram first reaches 90% of the sill."""
     ranges = []
@@ -293,10 +317,17 @@ def _starts(experimentals, variance, nugget, n_struct, reach):
     return [[(part / 2, *(r * f for r in ranges)), (part / 2, *ranges)] for f in (0.2, 0.4)]
 
 
-def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, reach):
-    """The final joint fit on the three principal variograms for each candidate (structure count,
-    shape); the choice by BIC. Returns (model, table of candidates, residual rows)."""
+def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, reach, downhole=None,
+                   directions=None):
+    """The final joint fit on the three principal variograms (and the down-hole variogram along the
+    holes' ``directions``, when given) for each candidate (structure count, shape); the choice by BIC.
+    Returns (model, table of candidates, residual rows)."""
     h, g, w, which = _principal_data(experimentals, axes, options.min_pairs, options.principal_tolerance_deg)
+    if downhole is not None and len(g):
+        hd, gd, wd = _downhole_data(downhole, directions, options.min_pairs, w.sum() / 3.0,
+                                    bool(options.principal_tolerance_deg))
+        h, g, w = np.concatenate([h, hd]), np.concatenate([g, gd]), np.concatenate([w, wd])
+        which = np.concatenate([which, np.full(len(gd), 3)])
     if len(g) < 4:
         raise FitError("fewer than four supported lags along the principal directions: too few pairs to fit. "
                        "Check --lag and --lags against the drill spacing: the lags must hold pairs of several holes.")
@@ -314,7 +345,8 @@ def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, r
             candidates.append({"structures": n_struct, "shape": shape, "weighted_rss": best[1], "bic": bic,
                                "model": best[0], "residuals": best[2]})
     chosen = min(candidates, key=lambda c: c["bic"])
-    residuals = [{"axis": AXIS_NAMES[a], "distance": float(np.linalg.norm(hv[0])), "gamma": float(gv),
+    names = AXIS_NAMES + ("down_hole",)
+    residuals = [{"axis": names[a], "distance": float(np.linalg.norm(hv[0])), "gamma": float(gv),
                   "model": float(gv + rv), "residual": float(rv)}
                  for a, hv, gv, rv in zip(which, h, g, chosen["residuals"])]
     table = [{k2: v for k2, v in c.items() if k2 not in ("model", "residuals")} for c in candidates]
@@ -340,6 +372,7 @@ class FitResult:
     downhole: Experimental
     bootstrap: dict | None = None
     warnings: list = field(default_factory=list)  # sentences for the user: what the fit could not resolve
+    nugget_estimate: object = None  # engine.nugget.NuggetEstimate: how the nugget was found
 
 
 def default_lag(xyz, hole, composite_length):
@@ -373,19 +406,40 @@ class VariogramFitter:
     def __init__(self, options: FitOptions | None = None):
         self.options = options or FitOptions()
 
-    def fit(self, xyz, values, hole, depth, composite_length=None, progress=None):
+    def fit(self, xyz, values, hole, depth, composite_length=None, progress=None, ends=None, samples=None,
+            effective_samples=None, weights=None):
+        """``ends``: from and to of each composite (n, 2), metres (default: the mid-depth plus or minus
+        half the composite length); ``samples``: the samples behind the composites (an
+        ``engine.nugget.Intervals`` with the composites' hole numbers) and ``effective_samples``: each
+        composite's effective number of samples, to find the nugget at sample support and carry it
+        to the composites' (docs/methods.md, "Nugget"); without them the composites' own down-hole
+        variogram, fitted with shapes averaged over the composites, gives it. ``weights``: declustering
+        weights (engine/decluster.py): the variance the sill is compared with is theirs."""
+        from .nugget import Intervals, NuggetFit
+
         o = self.options
         xyz = np.ascontiguousarray(xyz, dtype=np.float64)
         values = np.asarray(values, dtype=np.float64)
         hole = np.asarray(hole, dtype=np.int64)
         depth = np.asarray(depth, dtype=np.float64)
         keep = np.isfinite(values) & np.isfinite(xyz).all(axis=1)
+        half = 0.5 * (composite_length if composite_length and composite_length > 0 else 1.0)
+        ends = np.c_[depth - half, depth + half] if ends is None else np.asarray(ends, dtype=np.float64)
+        ends = ends[keep]
+        if effective_samples is not None:
+            effective_samples = np.asarray(effective_samples, dtype=np.float64)[keep]
+        if weights is not None:
+            weights = np.asarray(weights, dtype=np.float64)[keep]
         xyz, values, hole, depth = xyz[keep], values[keep], hole[keep], depth[keep]
         if len(values) < 10:
             raise FitError(f"{len(values)} composites with a value: too few to fit a variogram.")
         variance = float(np.var(values, ddof=1))
         if not variance > 0:
             raise FitError("the values do not vary: there is no variogram to fit.")
+        if weights is not None and np.all(weights > 0):
+            from .decluster import weighted_stats
+
+            variance = weighted_stats(values, weights)[1]
         step = progress or (lambda name: None)
         lag = o.lag_m or default_lag(xyz, hole, composite_length)
         bins = LagBins(lag, o.lags)
@@ -394,6 +448,16 @@ class VariogramFitter:
         downhole_bins = LagBins(dh_lag, max(4, int(math.ceil(min(reach, 10 * dh_lag) / dh_lag))))
         index = PairIndex(xyz, hole, depth, max_distance_m=max(reach, downhole_bins.reach_m))
         self.index_ = index
+
+        # 1: the nugget, from the samples' (or the composites') down-hole variogram with regularised shapes
+        step("the nugget down the holes")
+        if samples is not None and effective_samples is not None:
+            self.nugget_fit_ = NuggetFit(samples, effective_samples, o.min_pairs)
+        else:
+            self.nugget_fit_ = NuggetFit(Intervals(hole, ends[:, 0], ends[:, 1], values), None, o.min_pairs)
+        self.nugget_ = self.nugget_fit_.estimate()
+        nugget = min(self.nugget_.composite, 0.95 * variance)
+        directions = hole_directions(xyz, hole)
 
         # 2: the global search; a light pass (pair counts and squared differences only)
         step("searching directions")
@@ -420,22 +484,24 @@ class VariogramFitter:
         semi = fan_u[int(np.nanargmin(fan_smooth))]
         axes0 = orientation_axes(major, semi)
 
-        # 1 and 4-5: the nugget (down the holes), principal fit, refinement on the volume, final fit
+        # 4-5: principal fit, refinement on the volume, final fit (the nugget held)
         step("refining the axes on the variogram volume")
         model, principal, downhole = self._refine(xyz, values, hole, depth, index, axes0, variance, bins,
-                                                  downhole_bins)
-        nugget = model.nugget
+                                                  downhole_bins, nugget, directions)
         step("fitting the model")
-        final, candidates, residuals = choose_and_fit(principal, model.axes, variance, nugget, o, reach)
+        final, candidates, residuals = choose_and_fit(principal, model.axes, variance, nugget, o, reach, downhole,
+                                                      directions)
         result = FitResult(final, variance, nugget, int(sum(ex.pairs.sum() for ex in principal)), lag,
                            {"directions": int(len(u)), "tolerance_deg": o.search_tolerance_deg,
                             "best_score": float(np.nanmin(smooth)), "worst_score": float(np.nanmax(smooth)),
                             "initial_axes": axes0.tolist(), "fan_directions": int(len(fan_u))},
                            candidates, residuals, principal, downhole,
-                           warnings=unresolved_ranges(final, xyz, reach))
+                           warnings=unresolved_ranges(final, xyz, reach) + short_of_the_data(final, principal, downhole,
+                                                                                             directions, o.min_pairs),
+                           nugget_estimate=self.nugget_)
         if o.bootstrap > 0:
             step(f"bootstrap of {o.bootstrap} replicates")
-            result.bootstrap = self._bootstrap(xyz, values, hole, depth, index, result, bins, downhole_bins)
+            result.bootstrap = self._bootstrap(xyz, values, hole, depth, index, result, bins, downhole_bins, directions)
         self.result_ = result
         return self
 
@@ -459,56 +525,65 @@ class VariogramFitter:
         return accumulate(xyz, values, sets, hole=hole, depth=depth, index=index, threads=self.options.threads,
                           weights=weights)
 
-    def _refine(self, xyz, values, hole, depth, index, axes0, variance, bins, downhole_bins):
-        """One pass (principal directions, down the holes, the volume): the nugget, a fit on the
-        principal variograms, then rotation, sills and ranges on the volume; a second pass gives the
-        principal variograms along the refined axes. Returns (model, principal, down-hole)."""
+    def _refine(self, xyz, values, hole, depth, index, axes0, variance, bins, downhole_bins, nugget, directions):
+        """One pass (principal directions, down the holes, the volume for the outputs): a fit on the
+        principal and down-hole variograms; then rotation, sills and ranges on the variogram volume
+        in the frame of the holes (engine/framevolume.py: cells one composite long along the holes,
+        one lag across), from several orientations; a last pass gives the principal variograms along
+        the refined axes. Returns (model, principal, down-hole)."""
         o = self.options
         reach = bins.reach_m
-        nx, ny, nz = o.volume_cells
         volume = self._volume_grid(reach)
         acc = self._principal_pass(xyz, values, hole, depth, index, axes0, bins, None, volume, downhole_bins)
         self.volume_ = acc  # the variogram volume (and the first principal sets) for the outputs
         self.principal_ = acc
         downhole = downhole_experimental(acc)
-        nugget = min(nugget_from_downhole(downhole, o.min_pairs), 0.95 * variance)
         principal = directional_experimentals(acc)
         n_struct = 1 if o.structures == "1" else 2
         h, g, w, _ = _principal_data(principal, axes0, o.min_pairs, o.principal_tolerance_deg)
         if len(g) < 4:
             raise FitError("fewer than four supported lags along the principal directions: too few pairs.")
+        hd, gd, wd = _downhole_data(downhole, directions, o.min_pairs, w.sum() / 3.0, bool(o.principal_tolerance_deg))
+        h, g, w = np.concatenate([h, hd]), np.concatenate([g, gd]), np.concatenate([w, wd])
         best = None
         for start in _starts(principal, variance, nugget, n_struct, reach):
             fitted = fit_lag_vectors(h, g, w, nugget, axes0, n_struct, o.shapes[0], start, max_range=reach)
             if best is None or fitted[1] < best[1]:
                 best = fitted
         first = best[0]
-        # the volume: every stored cell with enough pairs, at its centre lag vector
-        gamma_v, counts = acc.volume(0)
-        cz, cy, cx = np.meshgrid(np.arange(-nz, nz + 1) * volume.cell_m[2], np.arange(-ny, ny + 1) * volume.cell_m[1],
-                                 np.arange(-nx, nx + 1) * volume.cell_m[0], indexing="ij")
-        hv = np.c_[cx.ravel(), cy.ravel(), cz.ravel()]
-        ok = (counts.ravel() >= o.min_pairs) & np.isfinite(gamma_v.ravel()) & (np.linalg.norm(hv, axis=1) > 0)
-        ok &= np.linalg.norm(hv, axis=1) <= reach
-        ok &= (cz.ravel() < 0) | ((cz.ravel() == 0) & ((cy.ravel() < 0) | ((cy.ravel() == 0) & (cx.ravel() < 0))))
+        # the volume in the frame of the holes: cells one composite long along them, one lag across
+        frame, _ = hole_frame(xyz, hole)
+        data = FrameVolume(xyz, hole, depth, frame, bins.lag_m, float(downhole_bins.lag_m), reach,
+                           o.threads).data(values).supported(o.min_pairs)
+        self.frame_volume_ = (frame, bins.lag_m, float(downhole_bins.lag_m), reach)
         axes = axes0
-        if ok.sum() >= 20:
-            hv, gv, nv = hv[ok], gamma_v.ravel()[ok], counts.ravel()[ok]
-            wv = nv / np.linalg.norm(hv, axis=1)
+        if len(data) >= 20:
+            hv, gv = data.h, data.gamma
+            wv = data.pairs / np.linalg.norm(hv, axis=1)
             start = [(s.sill, *s.ranges_m) for s in first.structures]
-            refined, _, _ = fit_lag_vectors(hv, gv, wv / wv.mean(), nugget, axes0, n_struct, o.shapes[0], start,
-                                            fit_rotation=True, max_range=reach)
-            axes = refined.axes
+            # from the search's axes; from them turned a quarter about the major (semi-major and minor
+            # swapped) and about the minor (major and semi-major swapped); and with the minor, then the
+            # major, along the holes (engine/framevolume.py). The rotation is bounded, and directions
+            # without pairs at short lags (across holes wider apart than a range) mislead the search.
+            # The starts are compared by their weighted residuals on the same cells.
+            best = None
+            for turned in swapped_axes(axes0) + start_orientations(axes0, frame)[1:]:
+                refined, wrss, _ = fit_lag_vectors(hv, gv, wv / wv.mean(), nugget, turned, n_struct, o.shapes[0],
+                                                   start, fit_rotation=True, max_range=reach)
+                if best is None or wrss < best[1]:
+                    best = (refined, wrss)
+            axes = best[0].axes
             acc = self._principal_pass(xyz, values, hole, depth, index, axes, bins, downhole=downhole_bins)
             self.principal_ = acc  # along the refined axes, with the down-hole set
             principal = directional_experimentals(acc)
         return Model(nugget, first.structures, axes), principal, downhole
 
-    def _bootstrap(self, xyz, values, hole, depth, index, result, bins, downhole_bins):
+    def _bootstrap(self, xyz, values, hole, depth, index, result, bins, downhole_bins, directions):
         """All replicates' pair sums in one pass (PairIndex.run_replicates), then per replicate: the
-        nugget from its down-hole variogram, its axes from a fit with rotation on its variogram
-        volume, and its ranges from the joint fit on its directional variograms along the fitted
-        axes, with the fitted model's structure count and shape."""
+        nugget from its samples' down-hole variogram, its axes from a fit with rotation on its
+        variogram volume in the frame of the holes, and its ranges from the joint fit on its
+        directional and down-hole variograms along the fitted axes, with the fitted model's
+        structure count and shape."""
         o = self.options
         rng = np.random.default_rng(o.seed)
         main = result.model
@@ -518,22 +593,27 @@ class VariogramFitter:
         ids, code = np.unique(group, return_inverse=True)
         draws = rng.multinomial(len(ids), np.full(len(ids), 1.0 / len(ids)), size=o.bootstrap).T
         weights = draws[code].astype(np.float64)
+        group_of_hole = np.zeros(int(hole.max()) + 1, dtype=np.int64)
+        group_of_hole[hole] = code
         reach = bins.reach_m
-        volume = self._volume_grid(reach)
         sets = Sets(directions=[_direction(a, o.principal_tolerance_deg) for a in main.axes], directional_bins=bins,
-                    downhole=downhole_bins, volume=volume, max_distance_m=max(reach, downhole_bins.reach_m))
+                    downhole=downhole_bins, max_distance_m=max(reach, downhole_bins.reach_m))
         plan = sets.plan()
         sums = index.run_replicates(values, plan, weights, threads=o.threads, group=code)
         width = bins.count + 1
         dir_first = [plan.layout[k.L_DIR_SLOT] + a * width for a in range(3)]
         dh_first = plan.layout[k.L_DH_SLOT]
-        hv, vol_slots = _stored_volume_cells(volume, plan.layout[k.L_VOL_SLOT], reach)
+        frame, across, along, _ = self.frame_volume_
+        fv = FrameVolume(xyz, hole, depth, frame, across, along, reach, o.threads)
+        n_fv, s_fv = fv.replicates(values, weights, group=code)
         shape = main.structures[0].shape
         n_struct = len(main.structures)
         start = [(s.sill, *s.ranges_m) for s in main.structures]
         one = FitOptions(**{**asdict(o), "structures": str(n_struct), "shapes": (shape,)})
         angles = {name: [] for name in AXIS_NAMES}
         ranges = {name: [] for name in AXIS_NAMES}
+        effective = {name: [] for name in AXIS_NAMES}
+        nuggets = []
         failed = 0
 
         for r in range(o.bootstrap):
@@ -541,19 +621,16 @@ class VariogramFitter:
                 used = weights[:, r] > 0
                 variance = float(np.cov(values[used], aweights=weights[used, r]))
                 dh = _from_replicate_sums(sums, dh_first, downhole_bins.count, result.downhole.distance, r)
-                nugget = min(nugget_from_downhole(dh, o.min_pairs), 0.95 * variance)
-                n_v = sums[vol_slots, 0, r]
-                ok = n_v >= o.min_pairs
-                if ok.sum() < 20:
+                nugget = min(self.nugget_fit_.replicate(draws[group_of_hole, r], weights[:, r]), 0.95 * variance)
+                data = fv.lag_vectors(n_fv[:, r], s_fv[:, r]).supported(o.min_pairs)
+                if len(data) < 20:
                     raise FitError("too few volume cells")
-                with np.errstate(invalid="ignore", divide="ignore"):
-                    g_v = sums[vol_slots, 1, r][ok] / (2 * n_v[ok])
-                w_v = n_v[ok] / np.linalg.norm(hv[ok], axis=1)
-                refined, _, _ = fit_lag_vectors(hv[ok], g_v, w_v / w_v.mean(), nugget, main.axes, n_struct, shape,
-                                                start, fit_rotation=True, max_range=reach)
+                w_v = data.pairs / np.linalg.norm(data.h, axis=1)
+                refined, _, _ = fit_lag_vectors(data.h, data.gamma, w_v / w_v.mean(), nugget, main.axes, n_struct,
+                                                shape, start, fit_rotation=True, max_range=reach)
                 principal = [_from_replicate_sums(sums, f, bins.count, ex.distance, r)
                              for f, ex in zip(dir_first, result.principal)]
-                fitted, _, _ = choose_and_fit(principal, main.axes, variance, nugget, one, reach)
+                fitted, _, _ = choose_and_fit(principal, refined.axes, variance, nugget, one, reach, dh, directions)
             except (FitError, ValueError, np.linalg.LinAlgError):
                 failed += 1
                 continue
@@ -561,19 +638,29 @@ class VariogramFitter:
                 cos = abs(float(refined.axes[a] @ main.axes[a]))
                 angles[name].append(math.degrees(math.acos(min(1.0, cos))))
                 ranges[name].append(max(s.ranges_m[a] for s in fitted.structures))
+                effective[name].append(fitted.effective_range(main.axes[a]))
+            nuggets.append(nugget)
         done = o.bootstrap - failed
         unit = "single holes" if block is None else f"blocks of holes whose tops share a {block:.1f} m square in plan"
         out = {"replicates": o.bootstrap, "failed": failed, "resampled": unit, "groups": int(len(ids)),
                "method": f"{unit} resampled with replacement, each weighted by its draws (copies of a group do not "
-                         "pair with each other); per replicate the axes from a fit with rotation on its variogram "
-                         "volume, the ranges from its directional variograms along the fitted axes"}
+                         "pair with each other); per replicate its nugget from its samples down the holes, its axes "
+                         "from a fit with rotation on its variogram volume, its ranges from its directional and "
+                         "down-hole variograms"}
         if done >= 2:
             out["axis_angle_deg"] = {n: {"median": float(np.median(v)), "p95": float(np.percentile(v, 95))}
                                      for n, v in angles.items()}
-            out["range_m"] = {n: {"p2_5": float(np.percentile(v, 2.5)), "median": float(np.median(v)),
-                                  "p97_5": float(np.percentile(v, 97.5))} for n, v in ranges.items()}
+            def interval(v):
+                return {"p2_5": float(np.percentile(v, 2.5)), "median": float(np.median(v)),
+                        "p97_5": float(np.percentile(v, 97.5))}
+
+            out["range_m"] = {n: interval(v) for n, v in ranges.items()}
+            out["effective_range_m"] = {n: interval(v) for n, v in effective.items()}
+            out["nugget"] = interval(nuggets)
             out["samples"] = {"axis_angle_deg": {n: list(map(float, v)) for n, v in angles.items()},
-                              "range_m": {n: list(map(float, v)) for n, v in ranges.items()}}
+                              "range_m": {n: list(map(float, v)) for n, v in ranges.items()},
+                              "effective_range_m": {n: list(map(float, v)) for n, v in effective.items()},
+                              "nugget": list(map(float, nuggets))}
         return out
 
     def _volume_grid(self, reach):
@@ -592,18 +679,33 @@ def _hole_blocks(xyz, hole, block_m):
     return block_of_hole[position]
 
 
-def _stored_volume_cells(volume, first_slot, reach):
-    """Lag vectors (m, 3) and slots of the stored half of a volume grid's cells (iz < 0, or iz = 0
-    with iy < 0, or iy = 0 with ix < 0), within ``reach`` and not at zero."""
-    nx, ny, nz = volume.half_counts
-    cx, cy, cz = volume.cell_m
-    iz, iy, ix = np.meshgrid(-np.arange(nz + 1), np.arange(-ny, ny + 1), np.arange(-nx, nx + 1), indexing="ij")
-    iz, iy, ix = iz.ravel(), iy.ravel(), ix.ravel()
-    slots = first_slot + ((-iz) * (2 * ny + 1) + (iy + ny)) * (2 * nx + 1) + (ix + nx)
-    lower = (iz < 0) | ((iz == 0) & ((iy < 0) | ((iy == 0) & (ix < 0))))
-    h = np.c_[ix * cx, iy * cy, iz * cz].astype(np.float64)
-    keep = lower & (np.linalg.norm(h, axis=1) <= reach)
-    return h[keep], slots[keep]
+def short_of_the_data(model: Model, principal, downhole, directions, min_pairs) -> list[str]:
+    """Warnings for a fitted range shorter than the first lag with pairs along its axis: the first
+    supported lag of its principal variogram, or of the down-hole variogram when the axis lies within
+    20 degrees of the holes' mean direction. Nothing the data hold is that close along the axis, so
+    the range is not resolved."""
+    out = []
+    mean = directions.mean(axis=0)
+    mean = mean / max(np.linalg.norm(mean), 1e-12)
+    for a, name in enumerate(AXIS_NAMES):
+        firsts = []
+        ok = principal[a].supported(min_pairs) & (principal[a].distance > 0)
+        if ok.any():
+            firsts.append(float(principal[a].distance[ok].min()))
+        if abs(float(model.axes[a] @ mean)) >= math.cos(math.radians(20.0)):
+            ok = downhole.supported(min_pairs) & (downhole.distance > 0)
+            if ok.any():
+                firsts.append(float(downhole.distance[ok].min()))
+        label = name.replace("_", "-")
+        longest = max(s.ranges_m[a] for s in model.structures)
+        if not firsts:
+            out.append(f"No lag with pairs lies along the {label} axis: its range ({longest:.1f} m) is not supported "
+                       "by the data.")
+        elif longest < min(firsts):
+            out.append(f"The {label} range ({longest:.1f} m) is shorter than the first lag with pairs along that axis "
+                       f"({min(firsts):.1f} m): no pair of composites is that close along it, so the range is not "
+                       "resolved.")
+    return out
 
 
 def unresolved_ranges(model: Model, xyz, reach_m: float) -> list[str]:
@@ -626,6 +728,13 @@ def unresolved_ranges(model: Model, xyz, reach_m: float) -> list[str]:
     return out
 
 
+def swapped_axes(axes) -> list[np.ndarray]:
+    """``axes``, then the same turned a quarter about the major (semi-major and minor swapped) and
+    about the minor (major and semi-major swapped), each right-handed."""
+    axes = np.asarray(axes, dtype=np.float64)
+    return [axes, orientation_axes(axes[0], axes[2]), orientation_axes(axes[1], axes[0])]
+
+
 def orientation_axes(major, semi) -> np.ndarray:
     """Rows major, semi-major (made orthogonal to the major), minor = major x semi-major."""
     major = np.asarray(major, dtype=np.float64)
@@ -642,10 +751,13 @@ def model_json(result: FitResult, variable: str, domain: str | None) -> dict:
     out = {"schema": "drillaxis.model/1", "variable": variable, "domain": domain, "variance": result.variance,
            "pairs_used": result.pairs_used}
     out.update(m.to_json())
+    if result.nugget_estimate is not None:
+        out["nugget_support"] = result.nugget_estimate.to_json()
     out["fit"] = {
         "lag_m": result.lag_m,
-        "nugget_from": "down-hole variogram, first lags extrapolated to zero",
-        "weights": "pairs / mean lag distance, normalised to mean 1",
+        "nugget_from": result.nugget_estimate.method if result.nugget_estimate else None,
+        "weights": "pairs / mean lag distance, normalised to mean 1; the down-hole lags together weigh as much as "
+                   "one principal direction",
         "criterion": "BIC = n ln(weighted RSS / n) + parameters ln n",
         "candidates": result.candidates,
         "search": result.search,

@@ -1,9 +1,10 @@
 """Variogram models: a nugget plus nested structures, each with its shape, sill and three practical
 ranges along the axes of one anisotropy ellipsoid (docs/conventions.md).
 
-Ranges are practical ranges: the distance at which a structure reaches 95% of its sill (the range
-itself for the spherical shape), so the exponential's parameter is range / 3 and the gaussian's
-range / sqrt(3). A lag vector h is turned into the structure's scaled distance
+Ranges are practical ranges: the distance at which an exponential or gaussian structure reaches 95%
+of its sill; the spherical reaches all of its sill at its range (95% at about 0.81 of it). So the
+exponential's parameter is range / 3 and the gaussian's range / sqrt(3). A lag vector h is turned
+into the structure's scaled distance
 ``r = |(h . major / a_major, h . semi_major / a_semi, h . minor / a_minor)|`` and the structure
 contributes ``sill g(r)`` with g the shape at practical range 1. The nugget applies at any h != 0.
 
@@ -55,6 +56,12 @@ class Structure:
             raise UsageError("a structure needs three ranges: major, semi-major, minor")
 
 
+def _scaled(local, structure: Structure) -> np.ndarray:
+    """The scaled distance of lag vectors already in the model's axes."""
+    scaled = local / np.asarray(structure.ranges_m)
+    return np.sqrt(np.einsum("ij,ij->i", scaled, scaled))
+
+
 @dataclass
 class Model:
     """Nugget, nested structures and the ellipsoid's axes (rows major, semi-major, minor: unit
@@ -75,14 +82,15 @@ class Model:
     def scaled_distance(self, h, structure: Structure) -> np.ndarray:
         """The structure's scaled distance of lag vectors ``h`` (n, 3)."""
         local = np.atleast_2d(np.asarray(h, dtype=np.float64)) @ self.axes.T
-        return np.linalg.norm(local / np.asarray(structure.ranges_m), axis=1)
+        return _scaled(local, structure)
 
     def gamma(self, h) -> np.ndarray:
         """The model's semivariogram at lag vectors ``h`` (n, 3), metres."""
         h = np.atleast_2d(np.asarray(h, dtype=np.float64))
-        out = np.where(np.linalg.norm(h, axis=1) > 0, self.nugget, 0.0)
+        local = h @ self.axes.T  # once for every structure: the fits call this thousands of times
+        out = np.where(np.einsum("ij,ij->i", h, h) > 0, self.nugget, 0.0)
         for s in self.structures:
-            out = out + s.sill * unit_variogram(s.shape, self.scaled_distance(h, s))
+            out = out + s.sill * unit_variogram(s.shape, _scaled(local, s))
         return out
 
     def gamma_along(self, direction, distance_m) -> np.ndarray:

@@ -828,9 +828,10 @@ OUTPUT_COLUMNS = frozenset({"x", "y", "z", "length", "sampled", "bench", "x_from
 
 
 def _output_name(column: str, names) -> bool:
-    """Whether an interval column's name is one drillaxis writes itself (also ``V_sampled`` and
-    ``metal_V`` for another column V of the table)."""
+    """Whether an interval column's name is one drillaxis writes itself (also ``V_sampled``,
+    ``V_effective_samples`` and ``metal_V`` for another column V of the table)."""
     return (column in OUTPUT_COLUMNS or (column.endswith("_sampled") and column[:-8] in names)
+            or (column.endswith("_effective_samples") and column[:-18] in names)
             or (column.startswith("metal_") and column[6:] in names))
 
 

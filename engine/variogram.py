@@ -221,16 +221,33 @@ def require_variation(values, what: str, least: int = 2) -> None:
 # --------------------------------------------------------------------------------------------
 
 
-def normal_scores(values) -> np.ndarray:
-    """Normal scores of the finite values (ties share their mean rank); NaN stays NaN."""
+def normal_scores(values, weights=None) -> np.ndarray:
+    """Normal scores of the finite values (ties share their mean rank); NaN stays NaN. With
+    ``weights`` (declustering), each value's cumulative probability is the weight below it plus half
+    its own (ties sharing), over the total: the declustered distribution is made normal."""
     from scipy.special import ndtri  # imported here: scipy.special costs start-up time
 
     values = np.asarray(values, dtype=np.float64)
     out = np.full(values.shape, np.nan)
     finite = np.isfinite(values)
     n = int(finite.sum())
-    if n:
+    if not n:
+        return out
+    if weights is None:
         out[finite] = ndtri((_average_ranks(values[finite]) - 0.5) / n)
+        return out
+    v = values[finite]
+    w = np.asarray(weights, dtype=np.float64)[finite]
+    order = np.argsort(v, kind="stable")
+    sv, sw = v[order], w[order]
+    new = np.r_[True, sv[1:] != sv[:-1]]
+    group = np.cumsum(new) - 1
+    tie_weight = np.bincount(group, weights=sw)
+    below = np.r_[0.0, np.cumsum(tie_weight)[:-1]]
+    p = (below + 0.5 * tie_weight) / tie_weight.sum()
+    scores = np.empty(len(v))
+    scores[order] = ndtri(p[group])
+    out[finite] = scores
     return out
 
 

@@ -100,6 +100,7 @@ class Program:
     surveys: pd.DataFrame
     intervals: pd.DataFrame
     truth: dict
+    noise: np.ndarray | None = None  # each interval's own nugget draw (not written): truths at composite support
 
     def write(self, folder) -> dict[str, Path]:
         """Write ``collars.csv``, ``surveys.csv``, ``intervals.csv`` and ``truth.json``."""
@@ -204,7 +205,8 @@ def generate_program(spec: ProgramSpec | None = None, seed: int = 0) -> Program:
         [(s.shape, s.sill, (s.major_m, s.semi_major_m, s.minor_m)) for s in f.structures],
         axes, rng, features=f.features, origin=centre,
     ).values(mid, direction, length)
-    gaussian += rng.normal(0.0, np.sqrt(f.nugget), size=len(mid)) if f.nugget > 0 else 0.0
+    noise = rng.normal(0.0, np.sqrt(f.nugget), size=len(mid)) if f.nugget > 0 else np.zeros(len(mid))
+    gaussian += noise
 
     # weathering surface: oxide_depth_m below the collar surface, interpolated from the nearest collar
     collar_xyz = trace.collar_xyz_
@@ -252,4 +254,4 @@ def generate_program(spec: ProgramSpec | None = None, seed: int = 0) -> Program:
         "counts": {"holes": len(collars), "surveys": len(surveys), "intervals": len(intervals),
                    "sampled_m": float((intervals["to"] - intervals["from"]).sum())},
     }
-    return Program(collars, surveys, intervals, truth)
+    return Program(collars, surveys, intervals, truth, noise)

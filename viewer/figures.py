@@ -153,6 +153,24 @@ def sill(check: dict, variable: str) -> bytes:
     return _variogram_axes(figure, ax, variable, "Variograms to half the extent", check["flag"])
 
 
+def declustering(d: dict, variable: str) -> bytes:
+    """The declustered mean against the cell size (the scan), the naive mean and the size chosen."""
+    variable = plain(variable)
+    figure, ax = plt.subplots(figsize=(5.6, 3.2))
+    scan = d.get("scan", {})
+    sizes, means = np.asarray(scan.get("cell_m", []), dtype=float), np.asarray(scan.get("mean", []), dtype=float)
+    if len(sizes):
+        ax.plot(sizes, means, "o-", markersize=3, color=DATA, label="declustered mean")
+    ax.axhline(d["naive_mean"], color=QUIET, linestyle="--", linewidth=1, label="naive mean")
+    if d.get("cell_m"):
+        ax.axvline(d["cell_m"], color=MODEL, linewidth=1.2, label=f"cell chosen, {d['cell_m']:.1f} m")
+    ax.set_xlabel("cell size (m)")
+    ax.set_ylabel(f"mean of {variable}")
+    ax.set_title("Cell declustering: the mean against the cell size")
+    ax.legend(frameon=False, fontsize=7)
+    return png(figure)
+
+
 def _variogram_axes(figure, ax, variable, title, flagged) -> bytes:
     ax.set_xlabel("separation (m)")
     ax.set_ylabel(f"semivariogram of {variable}")

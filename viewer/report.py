@@ -238,7 +238,7 @@ def _variograms(c) -> str:
     if not model:
         return '<div class="note">No model was fitted.</div>'
     parts = []
-    rows = [("nugget", model["nugget"], "", "", "")]
+    rows = [("nugget (composite support)", model["nugget"], "", "", "")]
     for s in model["structures"]:
         r = s["ranges"]
         rows.append((s["shape"], s["sill"], r["major"], r["semi_major"], r["minor"]))
@@ -246,18 +246,39 @@ def _variograms(c) -> str:
                  f"along the principal axes; transform: {e(model.get('transform', 'none'))}.</p>")
     parts.append(table(["structure", "sill", "major range (m)", "semi-major range (m)", "minor range (m)"],
                        rows, numeric=[1, 2, 3, 4]))
+    d = model.get("declustering")
+    if d:
+        cell = f"cells of {number(d['cell_m'])} m" if d.get("cell_m") else "no declustering"
+        parts.append(f"<p>Statistics of the values fitted, naive beside declustered ({cell}; {e(d.get('rule', ''))}). "
+                     "The sill is compared with the declustered variance.</p>")
+        parts.append(table(["statistic", "naive", "declustered"],
+                           [("mean", d["naive_mean"], d["mean"]), ("variance", d["naive_variance"], d["variance"])],
+                           numeric=[1, 2]))
+        if len(d.get("scan", {}).get("cell_m", [])) > 1:
+            parts.append(image(figures.declustering(d, model["variable"]), "declustered mean against cell size"))
     if c.get("fit_variograms") is not None:
         parts.append(image(figures.fitted_variograms(c["fit_variograms"], model, model["variable"]),
                            "experimental variograms and model"))
     fit = model.get("fit", {})
-    parts.append(f"<p>Lag {number(fit.get('lag_m'))} m; nugget from {e(fit.get('nugget_from'))}; weights: "
-                 f"{e(fit.get('weights'))}; choice: {e(fit.get('criterion'))}.</p>")
+    support = model.get("nugget_support") or {}
+    if support:
+        sample = support.get("sample_support")
+        along = support.get("along_holes") or {}
+        parts.append("<p>The nugget: " + e(support.get("method", "")) + ". At composite support "
+                     f"{number(support.get('composite_support'))}"
+                     + (f"; at sample support {number(sample)}, with "
+                        f"{number(support.get('mean_effective_samples_per_composite'))} effective samples per "
+                        "composite on average" if sample is not None else "")
+                     + f". Down the holes: {e(along.get('shape', ''))} structure, sill {number(along.get('sill'))}, "
+                     f"range {number(along.get('range_m'))} m, from {number(along.get('pairs'))} pairs.</p>")
+    parts.append(f"<p>Lag {number(fit.get('lag_m'))} m; weights: {e(fit.get('weights'))}; choice: "
+                 f"{e(fit.get('criterion'))}.</p>")
     if fit.get("candidates"):
         keys = [k for k in fit["candidates"][0] if not isinstance(fit["candidates"][0][k], (dict, list))]
         parts.append(table(keys, [[cand.get(k) for k in keys] for cand in fit["candidates"]],
                            numeric=[i for i, k in enumerate(keys)
                                     if isinstance(fit["candidates"][0][k], (int, float))]))
-    parts.append(box("warn", fit.get("problems", [])))
+    parts.append(box("warn", fit.get("problems", []) + fit.get("warnings", [])))
     return "".join(parts)
 
 

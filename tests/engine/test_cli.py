@@ -186,6 +186,13 @@ def test_demo_runs(tmp_path, capsys):
         assert (tmp_path / name).exists(), name
     assert "0 error(s)" in out and "major axis trend" in out
     assert "truth against fit" in out and "range ratio" in out and "competent or qualified person" in out
+    # the nugget from the samples, carried to the composites (a pure nugget averages down: composite below sample)
+    model = json.loads((tmp_path / "model.json").read_text())
+    support = model["nugget_support"]
+    assert "samples" in model["fit"]["nugget_from"] and support["sample_support"] > 0
+    assert model["nugget"] == pytest.approx(support["composite_support"])
+    assert support["composite_support"] < support["sample_support"]
+    assert "at sample support" in out
 
 
 def test_progress_bar_on_a_terminal_only(write_tables, tmp_path):

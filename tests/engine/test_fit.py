@@ -165,3 +165,18 @@ def test_the_fit_does_not_depend_on_the_unit_of_the_values():
         assert angle < 1.0, (s, angle)
     for s, surface in surfaces.items():
         assert np.max(np.abs(surface - surfaces[1.0]) / surfaces[1.0]) < 0.01, s
+
+
+def test_a_direction_with_only_short_lag_pairs_does_not_look_continuous():
+    # the continuity score is the mean gamma over the lags; lags beyond the last supported one hold no
+    # evidence of continuity, so they count at the variance (review finding: np.interp held the last
+    # short-lag value to the end and made such a direction look the most continuous)
+    from engine.fit import Experimental, continuity_scores
+
+    d = np.arange(1.0, 13.0) * 10.0
+    gamma = 1.0 - np.exp(-3 * d / 60.0)  # an exponential of range 60 m, sill 1
+    full = Experimental(d, gamma, np.full(12, 100.0))
+    short = Experimental(d, gamma, np.r_[np.full(3, 100.0), np.zeros(9)])
+    scores = continuity_scores([full, short], 1.0, 30)
+    assert scores[1] >= scores[0]
+    assert scores[0] == pytest.approx(gamma.mean())

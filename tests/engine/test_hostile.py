@@ -339,6 +339,8 @@ BAD_OPTIONS = {
     "downhole lag 0": ("variogram", ["--downhole-lag", "0"], "--downhole-lag"),
     "bootstrap -1": ("fit", ["--bootstrap", "-1"], "--bootstrap"),
     "bootstrap block -1": ("fit", ["--bootstrap-block", "-1"], "--bootstrap-block"),
+    "decluster cell -1": ("fit", ["--decluster-cell", "-1"], "--decluster-cell"),
+    "decluster cell nan": ("run", ["--decluster-cell", "nan"], "--decluster-cell"),
     "seed -1": ("fit", ["--seed", "-1"], "--seed"),
     "size 0 0": ("view", ["--size", "0", "0"], "--size"),
     "size huge": ("view", ["--size", "100", "100000"], "--size"),
