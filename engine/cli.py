@@ -196,6 +196,19 @@ def _fit_options(parser: argparse.ArgumentParser):
                        help="nested structures (default auto: one or two, by the Bayesian information criterion)")
     group.add_argument("--transform", choices=("none", "normal-score", "log"), default="none",
                        help="transform the values before fitting (default: none)")
+    fixed = parser.add_argument_group("fixing parts of the model (the fit finds the rest)")
+    fixed.add_argument("--nugget", type=_number(0, 1e300), metavar="C0",
+                       help="the nugget at composite support, in the units of the values fitted")
+    fixed.add_argument("--shape", choices=("spherical", "exponential", "gaussian"),
+                       help="the shape of every structure (default: spherical or exponential, the better)")
+    fixed.add_argument("--plane", metavar="DIPDIR/DIP", help="the plane of the major and semi-major axes: dip "
+                       "direction 0 to 360 and dip 0 to 90; with --pitch or --major it fixes the axes")
+    fixed.add_argument("--pitch", type=_number(0, 180), metavar="DEG", help="pitch of the major axis in --plane, "
+                       "from its strike line (90 degrees anticlockwise of the dip direction)")
+    fixed.add_argument("--major", metavar="TREND/PLUNGE", help="the major axis (with --plane: it must lie within 10 "
+                       "degrees of the plane, and is projected into it)")
+    fixed.add_argument("--model", metavar="FILE", help="refit a model.json on these data: its axes, shapes and number "
+                       "of structures are kept; the nugget, sills and ranges are fitted")
     group.add_argument("--decluster-cell", type=_number(0, 1e6), metavar="M",
                        help="cell size of the cell declustering, metres (default: chosen from a scan of sizes up to "
                             "the spacing of the sparse drilling; 0: no declustering, every composite weighs one)")
@@ -1017,6 +1030,59 @@ def _trend_plunge(text, option):
     return trend, plunge
 
 
+def _fixed_parts(args) -> dict:
+    """FitOptions for what the user fixed (--nugget, --shape, --plane with --pitch or --major,
+    --model); bad usage when they contradict each other or are incomplete."""
+    import numpy as np
+
+    from .orientation import axes_from_plane, vector_from_trend_plunge
+
+    out = {}
+    nugget, shape = getattr(args, "nugget", None), getattr(args, "shape", None)
+    plane, pitch, major = getattr(args, "plane", None), getattr(args, "pitch", None), getattr(args, "major", None)
+    path = getattr(args, "model", None)
+    if nugget is not None:
+        out["nugget"] = float(nugget)
+    if shape:
+        out["shapes"] = (shape,)
+    if path:
+        if plane or pitch is not None or major or shape:
+            raise UsageError("--model fixes the axes and shapes of the model it reads: leave out --plane, --pitch, "
+                             "--major and --shape, or leave out --model.")
+        _, model = _read_model(path)
+        out["axes"] = tuple(map(tuple, model.axes))
+        out["shapes"] = (model.structures[0].shape,)
+        if len({s.shape for s in model.structures}) > 1:
+            raise UsageError(f"--model {path!r}: its structures have different shapes; the fit keeps one shape for "
+                             "all structures.")
+        out["structures"] = str(len(model.structures))
+        return out
+    if (pitch is not None or major) and not plane:
+        raise UsageError("--pitch and --major need --plane DIPDIR/DIP: the plane of the major and semi-major axes.")
+    if plane:
+        if (pitch is None) == (major is None):
+            raise UsageError("--plane fixes the axes with one of --pitch DEG or --major TREND/PLUNGE (not both).")
+        dip_direction, dip = _trend_plunge(plane, "--plane")
+        if not 0 <= dip <= 90:
+            raise UsageError(f"--plane {plane!r}: the dip is 0 to 90 degrees.")
+        if pitch is not None:
+            axes = axes_from_plane(dip_direction, dip, float(pitch))
+        else:
+            along = vector_from_trend_plunge(*_trend_plunge(major, "--major"))
+            normal = axes_from_plane(dip_direction, dip, 0.0)[2]
+            off = math.degrees(math.asin(min(1.0, abs(float(along @ normal)))))
+            if off > 10.0:
+                raise UsageError(f"--major {major!r} lies {off:.1f} degrees off --plane {plane!r}: the major axis "
+                                 "lies in the plane (within 10 degrees).")
+            m = along - (along @ normal) * normal
+            m /= np.linalg.norm(m)
+            axes = np.stack([m, np.cross(normal, m), normal])
+            if axes[2] @ np.cross(axes[0], axes[1]) < 0:
+                axes[1] = -axes[1]
+        out["axes"] = tuple(map(tuple, axes))
+    return out
+
+
 def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, domain_text=None, lead=None,
                    detrend=None, ends=None, samples=None, effective_samples=None):
     """Fit the model, check the pattern, write model.json, pattern.json, fit_variograms.csv,
@@ -1037,11 +1103,11 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, doma
         declustering = decluster(xyz, values, hole, cell_m=None, sizes_m=[])
     else:
         declustering = decluster(xyz, values, hole, cell_m=cell)
+    raw = values
     values = _transformed(values, args.transform, args.value, residuals=bool(detrend), weights=declustering.weights)
-    options = FitOptions(lag_m=args.lag, lags=args.lags,
-                         structures=args.structures, bootstrap=args.bootstrap,
-                         bootstrap_block_m=getattr(args, "bootstrap_block", None), seed=args.seed,
-                         threads=args.threads)
+    options = FitOptions(**{"lag_m": args.lag, "lags": args.lags, "structures": args.structures,
+                            "bootstrap": args.bootstrap, "bootstrap_block_m": getattr(args, "bootstrap_block", None),
+                            "seed": args.seed, "threads": args.threads, **_fixed_parts(args)})
     if args.transform != "none" or detrend:  # the samples' values are not those fitted: the composites' own nugget
         samples = effective_samples = None
     fitter = VariogramFitter(options).fit(xyz, values, hole, depth, composite_length=length, progress=step,
@@ -1063,6 +1129,11 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, doma
     data["transform"] = args.transform
     data["declustering"] = {"values": "residuals from the trend" if detrend else "composites",
                             **declustering.to_json()}
+    if args.transform in ("log", "normal-score"):
+        from .backtransform import back_transform
+
+        # the model above is in the transform's units (as a simulation needs); kriging grades needs theirs
+        data["model_in_grade_units"] = back_transform(model, args.transform, raw, declustering.weights)
     if detrend:
         data["detrend"] = {k: detrend[k] for k in ("kind", "terms", "coefficients", "centre", "unit_m", "r_squared")}
         data["detrend"]["note"] = "the model is of the residuals: value minus this trend"
@@ -1130,6 +1201,11 @@ def _model_summary(data: dict, out: Path, console: Console, printed=("Stationari
     console.say(f"model of {data['variable']}: variance {data['variance']:.4g}, nugget {data['nugget']:.4g} at "
                 "composite support" + (f" ({sample:.4g} at sample support)" if sample is not None else "") +
                 f", {data['pairs_used']:,} pairs along the principal axes -> {out / 'model.json'}")
+    grade = data.get("model_in_grade_units")
+    if grade:
+        console.say(f"  back in grade units ({grade['method']}): nugget {grade['nugget']:.4g}; " + "; ".join(
+            f"{s['shape']} sill {s['sill']:.4g}, ranges {s['ranges']['major']:.1f} / {s['ranges']['semi_major']:.1f} / "
+            f"{s['ranges']['minor']:.1f} m" for s in grade["structures"]) + " (model.json: model_in_grade_units)")
     d = data.get("declustering") or {}
     if d.get("cell_m"):
         console.say(f"  declustered (cells of {d['cell_m']:.1f} m): mean {d['mean']:.4g}, variance "

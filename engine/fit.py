@@ -59,6 +59,8 @@ class FitOptions:
     seed: int = 0
     threads: int | None = None
     volume_cells: tuple = (12, 12, 12)
+    nugget: float | None = None  # fixed by the user (composite support), else fitted
+    axes: tuple | None = None  # rows major, semi-major, minor fixed by the user, else searched and fitted
 
 
 def fibonacci_directions(count: int) -> np.ndarray:
@@ -373,6 +375,7 @@ class FitResult:
     bootstrap: dict | None = None
     warnings: list = field(default_factory=list)  # sentences for the user: what the fit could not resolve
     nugget_estimate: object = None  # engine.nugget.NuggetEstimate: how the nugget was found
+    fixed: dict | None = None  # what the user fixed (model_json says what was fixed and what was fitted)
 
 
 def default_lag(xyz, hole, composite_length):
@@ -456,8 +459,15 @@ class VariogramFitter:
         else:
             self.nugget_fit_ = NuggetFit(Intervals(hole, ends[:, 0], ends[:, 1], values), None, o.min_pairs)
         self.nugget_ = self.nugget_fit_.estimate()
-        nugget = min(self.nugget_.composite, 0.95 * variance)
+        self.notes_ = [] if self.nugget_.sample is not None or o.nugget is not None else [
+            "The nugget comes from the composites' own down-hole variogram (no samples were given): a structure whose "
+            "range along the holes is a few composites long can take up part of it. Fitting from the tables (drillaxis "
+            "run) finds it at sample support and carries it to the composites'."]
+        nugget = min(self.nugget_.composite, 0.95 * variance) if o.nugget is None else float(o.nugget)
         directions = hole_directions(xyz, hole)
+        if o.axes is not None:
+            return self._fit_on_fixed_axes(xyz, values, hole, depth, index, variance, bins, downhole_bins, nugget,
+                                           directions, lag, step)
 
         # 2: the global search; a light pass (pair counts and squared differences only)
         step("searching directions")
@@ -496,9 +506,9 @@ class VariogramFitter:
                             "best_score": float(np.nanmin(smooth)), "worst_score": float(np.nanmax(smooth)),
                             "initial_axes": axes0.tolist(), "fan_directions": int(len(fan_u))},
                            candidates, residuals, principal, downhole,
-                           warnings=unresolved_ranges(final, xyz, reach) + short_of_the_data(final, principal, downhole,
-                                                                                             directions, o.min_pairs),
-                           nugget_estimate=self.nugget_)
+                           warnings=self.notes_ + unresolved_ranges(final, xyz, reach)
+                           + short_of_the_data(final, principal, downhole, directions, o.min_pairs),
+                           nugget_estimate=self.nugget_, fixed=self._fixed())
         if o.bootstrap > 0:
             step(f"bootstrap of {o.bootstrap} replicates")
             result.bootstrap = self._bootstrap(xyz, values, hole, depth, index, result, bins, downhole_bins, directions)
@@ -524,6 +534,47 @@ class VariogramFitter:
                     else None)
         return accumulate(xyz, values, sets, hole=hole, depth=depth, index=index, threads=self.options.threads,
                           weights=weights)
+
+    def _fixed(self) -> dict:
+        """What the user fixed: the nugget, the axes, the shapes, the number of structures."""
+        o = self.options
+        out = {}
+        if o.nugget is not None:
+            out["nugget"] = float(o.nugget)
+        if o.axes is not None:
+            out["axes"] = np.asarray(o.axes, dtype=np.float64).tolist()
+        if tuple(o.shapes) != FitOptions.shapes:
+            out["shapes"] = list(o.shapes)
+        if o.structures != "auto":
+            out["structures"] = int(o.structures)
+        return out
+
+    def _fit_on_fixed_axes(self, xyz, values, hole, depth, index, variance, bins, downhole_bins, nugget,
+                           directions, lag, step):
+        """Steps 4-6 with the axes the user fixed: no search, no rotation; sills, ranges (and the
+        structures' choice) on the principal and down-hole variograms along them."""
+        o = self.options
+        axes = np.asarray(o.axes, dtype=np.float64)
+        reach = bins.reach_m
+        step("fitting the model")
+        acc = self._principal_pass(xyz, values, hole, depth, index, axes, bins, None, self._volume_grid(reach),
+                                   downhole_bins)
+        self.volume_ = self.principal_ = acc
+        frame, _ = hole_frame(xyz, hole)
+        self.frame_volume_ = (frame, bins.lag_m, float(downhole_bins.lag_m), reach)
+        principal, downhole = directional_experimentals(acc), downhole_experimental(acc)
+        final, candidates, residuals = choose_and_fit(principal, axes, variance, nugget, o, reach, downhole,
+                                                      directions)
+        result = FitResult(final, variance, nugget, int(sum(ex.pairs.sum() for ex in principal)), lag,
+                           {"axes_fixed": True}, candidates, residuals, principal, downhole,
+                           warnings=self.notes_ + unresolved_ranges(final, xyz, reach)
+                           + short_of_the_data(final, principal, downhole, directions, o.min_pairs),
+                           nugget_estimate=self.nugget_, fixed=self._fixed())
+        if o.bootstrap > 0:
+            step(f"bootstrap of {o.bootstrap} replicates")
+            result.bootstrap = self._bootstrap(xyz, values, hole, depth, index, result, bins, downhole_bins, directions)
+        self.result_ = result
+        return self
 
     def _refine(self, xyz, values, hole, depth, index, axes0, variance, bins, downhole_bins, nugget, directions):
         """One pass (principal directions, down the holes, the volume for the outputs): a fit on the
@@ -604,8 +655,8 @@ class VariogramFitter:
         dir_first = [plan.layout[k.L_DIR_SLOT] + a * width for a in range(3)]
         dh_first = plan.layout[k.L_DH_SLOT]
         frame, across, along, _ = self.frame_volume_
-        fv = FrameVolume(xyz, hole, depth, frame, across, along, reach, o.threads)
-        n_fv, s_fv = fv.replicates(values, weights, group=code)
+        fv = FrameVolume(xyz, hole, depth, frame, across, along, reach, o.threads) if o.axes is None else None
+        n_fv, s_fv = fv.replicates(values, weights, group=code) if o.axes is None else (None, None)
         shape = main.structures[0].shape
         n_struct = len(main.structures)
         start = [(s.sill, *s.ranges_m) for s in main.structures]
@@ -621,13 +672,16 @@ class VariogramFitter:
                 used = weights[:, r] > 0
                 variance = float(np.cov(values[used], aweights=weights[used, r]))
                 dh = _from_replicate_sums(sums, dh_first, downhole_bins.count, result.downhole.distance, r)
-                nugget = min(self.nugget_fit_.replicate(draws[group_of_hole, r], weights[:, r]), 0.95 * variance)
-                data = fv.lag_vectors(n_fv[:, r], s_fv[:, r]).supported(o.min_pairs)
-                if len(data) < 20:
-                    raise FitError("too few volume cells")
-                w_v = data.pairs / np.linalg.norm(data.h, axis=1)
-                refined, _, _ = fit_lag_vectors(data.h, data.gamma, w_v / w_v.mean(), nugget, main.axes, n_struct,
-                                                shape, start, fit_rotation=True, max_range=reach)
+                nugget = (min(self.nugget_fit_.replicate(draws[group_of_hole, r], weights[:, r]), 0.95 * variance)
+                          if o.nugget is None else float(o.nugget))
+                refined = main
+                if o.axes is None:  # the axes vary only when they were fitted
+                    data = fv.lag_vectors(n_fv[:, r], s_fv[:, r]).supported(o.min_pairs)
+                    if len(data) < 20:
+                        raise FitError("too few volume cells")
+                    w_v = data.pairs / np.linalg.norm(data.h, axis=1)
+                    refined, _, _ = fit_lag_vectors(data.h, data.gamma, w_v / w_v.mean(), nugget, main.axes, n_struct,
+                                                    shape, start, fit_rotation=True, max_range=reach)
                 principal = [_from_replicate_sums(sums, f, bins.count, ex.distance, r)
                              for f, ex in zip(dir_first, result.principal)]
                 fitted, _, _ = choose_and_fit(principal, refined.axes, variance, nugget, one, reach, dh, directions)
@@ -753,7 +807,10 @@ def model_json(result: FitResult, variable: str, domain: str | None) -> dict:
     out.update(m.to_json())
     if result.nugget_estimate is not None:
         out["nugget_support"] = result.nugget_estimate.to_json()
+    fixed = result.fixed or {}
     out["fit"] = {
+        "fixed": fixed,
+        "fitted": [p for p in ("nugget", "axes", "shapes", "structures", "sills", "ranges") if p not in fixed],
         "lag_m": result.lag_m,
         "nugget_from": result.nugget_estimate.method if result.nugget_estimate else None,
         "weights": "pairs / mean lag distance, normalised to mean 1; the down-hole lags together weigh as much as "

@@ -204,6 +204,33 @@ def halves(check: dict, xyz, variable: str) -> bytes:
     return _variogram_axes(figure, ax, variable, "Omnidirectional variogram of each half", check["flag"])
 
 
+def both_models(model: dict, grade: dict, variable: str, units_of_the_fit: str) -> bytes:
+    """The model fitted in the transform's units and the same back in grade units, each along its
+    three axes (the grade model's declustered variance dashed)."""
+    from engine.model import AXIS_NAMES, Model
+
+    variable = plain(variable)
+    figure, panels = _grid(2, columns=2, size=(4.2, 3.0))
+    colours = (DATA, MODEL, SECOND)
+    for ax, (m, title, level) in zip(panels, ((model, f"fitted, in {units_of_the_fit}", model["variance"]),
+                                              (grade, "back in grade units", (model.get("declustering") or {})
+                                               .get("variance")))):
+        obj = Model.from_json(m)
+        top = 1.5 * max(s.ranges_m[0] for s in obj.structures)
+        d = np.linspace(0.0, top, 200)[1:]
+        for a, name in enumerate(AXIS_NAMES):
+            ax.plot(d, obj.gamma(d[:, None] * obj.axes[a][None, :]), color=colours[a], label=name.replace("_", "-"))
+        if level:
+            ax.axhline(level, color=QUIET, linestyle="--", linewidth=0.8,
+                       label="variance" if m is model else "declustered variance of the grades")
+        ax.set_xlabel("separation (m)")
+        ax.set_ylim(bottom=0)
+        ax.set_title(title)
+        ax.legend(frameon=False, fontsize=7)
+    panels[0].set_ylabel(f"semivariogram of {variable}")
+    return png(figure)
+
+
 def fitted_variograms(rows, model: dict, variable: str) -> bytes:
     """The experimental variograms along the three principal axes and down the holes, with the
     model along each axis and averaged over the direction's cone."""

@@ -246,6 +246,20 @@ def _variograms(c) -> str:
                  f"along the principal axes; transform: {e(model.get('transform', 'none'))}.</p>")
     parts.append(table(["structure", "sill", "major range (m)", "semi-major range (m)", "minor range (m)"],
                        rows, numeric=[1, 2, 3, 4]))
+    grade = model.get("model_in_grade_units")
+    if grade:
+        rows = [("nugget", grade["nugget"], "", "", "")]
+        for s in grade["structures"]:
+            r = s["ranges"]
+            rows.append((s["shape"], s["sill"], r["major"], r["semi_major"], r["minor"]))
+        parts.append(f"<h3>The model back in grade units</h3><p>The model above is of the {e(model.get('transform'))} "
+                     f"values. In grade units, by the {e(grade['method'])}: {e(grade['assumption'])}. Fitted to that "
+                     f"relation at 90 lags along the axes; largest relative misfit "
+                     f"{number(100 * grade['largest_relative_misfit'], 3)}%.</p>")
+        parts.append(table(["structure", "sill", "major range (m)", "semi-major range (m)", "minor range (m)"],
+                           rows, numeric=[1, 2, 3, 4]))
+        parts.append(image(figures.both_models(model, grade, model["variable"], model.get("transform")),
+                           "the model fitted and back in grade units"))
     d = model.get("declustering")
     if d:
         cell = f"cells of {number(d['cell_m'])} m" if d.get("cell_m") else "no declustering"

@@ -180,3 +180,36 @@ def test_a_direction_with_only_short_lag_pairs_does_not_look_continuous():
     scores = continuity_scores([full, short], 1.0, 30)
     assert scores[1] >= scores[0]
     assert scores[0] == pytest.approx(gamma.mean())
+
+
+@pytest.mark.slow
+def test_fixed_parts_are_kept_and_said(tmp_path):
+    # the geologist's hand on the fit: what is fixed stays as given, model.json says what was fixed and what was
+    # fitted, and the bootstrap varies only what was fitted (the axes' angles are zero when the axes are fixed)
+    from engine.cli import main
+    from engine.orientation import axes_from_plane
+
+    program = generate_program(recovery_spec(n_along=10, n_lines=8, hole_length_m=150.0), seed=2)
+    _, _, _, _, frame = composites_of(program)
+    path = tmp_path / "composites.csv"
+    frame[["hole", "from", "to", "x", "y", "z", "au_gpt"]].to_csv(path, index=False)
+    out = tmp_path / "fixed"
+    code = main(["fit", "--composites", str(path), "--value", "au_gpt", "--nugget", "0.07", "--plane", "120/35",
+                 "--pitch", "30", "--shape", "spherical", "--bootstrap", "4", "--out", str(out)])
+    assert code == 0
+    model = json.loads((out / "model.json").read_text())
+    assert model["nugget"] == 0.07
+    assert np.allclose(Model.from_json(model).axes, axes_from_plane(120.0, 35.0, 30.0), atol=1e-9)
+    assert {s["shape"] for s in model["structures"]} == {"spherical"}
+    assert set(model["fit"]["fixed"]) == {"nugget", "axes", "shapes"}
+    assert model["fit"]["fitted"] == ["structures", "sills", "ranges"]
+    assert model["bootstrap"]["axis_angle_deg"]["major"]["p95"] == pytest.approx(0.0, abs=1e-4)  # acos round-off
+    assert model["bootstrap"]["nugget"]["p2_5"] == model["bootstrap"]["nugget"]["p97_5"] == 0.07
+    # a model read back and refitted keeps its axes, shapes and number of structures
+    again = tmp_path / "again"
+    assert main(["fit", "--composites", str(path), "--value", "au_gpt", "--model", str(out / "model.json"),
+                 "--bootstrap", "0", "--out", str(again)]) == 0
+    refit = json.loads((again / "model.json").read_text())
+    assert np.allclose(Model.from_json(refit).axes, Model.from_json(model).axes, atol=1e-9)
+    assert len(refit["structures"]) == len(model["structures"]) and refit["fit"]["fitted"] == ["nugget", "sills",
+                                                                                               "ranges"]
