@@ -499,12 +499,20 @@ class VariogramFitter:
         model, principal, downhole = self._refine(xyz, values, hole, depth, index, axes0, variance, bins,
                                                   downhole_bins, nugget, directions)
         step("fitting the model")
-        final, candidates, residuals = choose_and_fit(principal, model.axes, variance, nugget, o, reach, downhole,
+        search = {"directions": int(len(u)), "tolerance_deg": o.search_tolerance_deg,
+                  "best_score": float(np.nanmin(smooth)), "worst_score": float(np.nanmax(smooth)),
+                  "initial_axes": axes0.tolist(), "fan_directions": int(len(fan_u))}
+        return self._finish(xyz, values, hole, depth, index, model.axes, principal, downhole, variance, bins,
+                            downhole_bins, nugget, directions, lag, search, step)
+
+    def _finish(self, xyz, values, hole, depth, index, axes, principal, downhole, variance, bins, downhole_bins,
+                nugget, directions, lag, search, step):
+        """Step 5 (the final fit along ``axes`` and the choice of structures) and 6 (the bootstrap)."""
+        o = self.options
+        reach = bins.reach_m
+        final, candidates, residuals = choose_and_fit(principal, axes, variance, nugget, o, reach, downhole,
                                                       directions)
-        result = FitResult(final, variance, nugget, int(sum(ex.pairs.sum() for ex in principal)), lag,
-                           {"directions": int(len(u)), "tolerance_deg": o.search_tolerance_deg,
-                            "best_score": float(np.nanmin(smooth)), "worst_score": float(np.nanmax(smooth)),
-                            "initial_axes": axes0.tolist(), "fan_directions": int(len(fan_u))},
+        result = FitResult(final, variance, nugget, int(sum(ex.pairs.sum() for ex in principal)), lag, search,
                            candidates, residuals, principal, downhole,
                            warnings=self.notes_ + unresolved_ranges(final, xyz, reach)
                            + short_of_the_data(final, principal, downhole, directions, o.min_pairs),
@@ -563,18 +571,8 @@ class VariogramFitter:
         frame, _ = hole_frame(xyz, hole)
         self.frame_volume_ = (frame, bins.lag_m, float(downhole_bins.lag_m), reach)
         principal, downhole = directional_experimentals(acc), downhole_experimental(acc)
-        final, candidates, residuals = choose_and_fit(principal, axes, variance, nugget, o, reach, downhole,
-                                                      directions)
-        result = FitResult(final, variance, nugget, int(sum(ex.pairs.sum() for ex in principal)), lag,
-                           {"axes_fixed": True}, candidates, residuals, principal, downhole,
-                           warnings=self.notes_ + unresolved_ranges(final, xyz, reach)
-                           + short_of_the_data(final, principal, downhole, directions, o.min_pairs),
-                           nugget_estimate=self.nugget_, fixed=self._fixed())
-        if o.bootstrap > 0:
-            step(f"bootstrap of {o.bootstrap} replicates")
-            result.bootstrap = self._bootstrap(xyz, values, hole, depth, index, result, bins, downhole_bins, directions)
-        self.result_ = result
-        return self
+        return self._finish(xyz, values, hole, depth, index, axes, principal, downhole, variance, bins, downhole_bins,
+                            nugget, directions, lag, {"axes_fixed": True}, step)
 
     def _refine(self, xyz, values, hole, depth, index, axes0, variance, bins, downhole_bins, nugget, directions):
         """One pass (principal directions, down the holes, the volume for the outputs): a fit on the
