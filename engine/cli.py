@@ -1201,11 +1201,6 @@ def _model_summary(data: dict, out: Path, console: Console, printed=("Stationari
     console.say(f"model of {data['variable']}: variance {data['variance']:.4g}, nugget {data['nugget']:.4g} at "
                 "composite support" + (f" ({sample:.4g} at sample support)" if sample is not None else "") +
                 f", {data['pairs_used']:,} pairs along the principal axes -> {out / 'model.json'}")
-    grade = data.get("model_in_grade_units")
-    if grade:
-        console.say(f"  back in grade units ({grade['method']}): nugget {grade['nugget']:.4g}; " + "; ".join(
-            f"{s['shape']} sill {s['sill']:.4g}, ranges {s['ranges']['major']:.1f} / {s['ranges']['semi_major']:.1f} / "
-            f"{s['ranges']['minor']:.1f} m" for s in grade["structures"]) + " (model.json: model_in_grade_units)")
     d = data.get("declustering") or {}
     if d.get("cell_m"):
         console.say(f"  declustered (cells of {d['cell_m']:.1f} m): mean {d['mean']:.4g}, variance "
@@ -1219,6 +1214,11 @@ def _model_summary(data: dict, out: Path, console: Console, printed=("Stationari
                 f"{o['minor']['trend']:.1f} plunge {o['minor']['plunge']:.1f}")
     console.say(f"  plane dip direction {o['plane']['dip_direction']:.1f} dip {o['plane']['dip']:.1f}, pitch "
                 f"{o['pitch']:.1f}")
+    grade = data.get("model_in_grade_units")
+    if grade:
+        console.say(f"  back in grade units ({grade['method']}): nugget {grade['nugget']:.4g}; " + "; ".join(
+            f"{s['shape']} sill {s['sill']:.4g}, ranges {s['ranges']['major']:.1f} / {s['ranges']['semi_major']:.1f} / "
+            f"{s['ranges']['minor']:.1f} m" for s in grade["structures"]) + " (model.json: model_in_grade_units)")
     b = data.get("bootstrap")
     if b and "axis_angle_deg" in b:
         a = b["axis_angle_deg"]

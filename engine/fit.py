@@ -460,9 +460,10 @@ class VariogramFitter:
             self.nugget_fit_ = NuggetFit(Intervals(hole, ends[:, 0], ends[:, 1], values), None, o.min_pairs)
         self.nugget_ = self.nugget_fit_.estimate()
         self.notes_ = [] if self.nugget_.sample is not None or o.nugget is not None else [
-            "The nugget comes from the composites' own down-hole variogram (no samples were given): a structure whose "
-            "range along the holes is a few composites long can take up part of it. Fitting from the tables (drillaxis "
-            "run) finds it at sample support and carries it to the composites'."]
+            "The nugget comes from the composites' own down-hole variogram, not the samples' (fit reads composites "
+            "only; with --transform or --detrend the values fitted are not the samples'): a structure whose range "
+            "along the holes is a few composites long can take up part of it. drillaxis run on the untransformed "
+            "values fits it at sample support and carries it to the composites'."]
         nugget = min(self.nugget_.composite, 0.95 * variance) if o.nugget is None else float(o.nugget)
         directions = hole_directions(xyz, hole)
         if o.axes is not None:
