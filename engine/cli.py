@@ -193,7 +193,7 @@ def _fit_options(parser: argparse.ArgumentParser):
     group.add_argument("--lags", type=_number(3, 200, integer=True), default=12, metavar="N",
                        help="number of lags (default 12)")
     group.add_argument("--structures", choices=("auto", "1", "2"), default="auto",
-                       help="nested structures (default auto: one or two, by the Bayesian information criterion)")
+                       help="nested structures (default auto: one or two, by cross-validation over groups of holes)")
     group.add_argument("--transform", choices=("none", "normal-score", "log"), default="none",
                        help="transform the values before fitting (default: none)")
     fixed = parser.add_argument_group("fixing parts of the model (the fit finds the rest)")
@@ -332,8 +332,10 @@ def build_parser() -> argparse.ArgumentParser:
                       metavar=("NX", "NY", "NZ"),
                       help="cells each side of zero along east, north, up (default 20 20 10)")
     p.add_argument("--measure", default="semivariogram",
-                   choices=("semivariogram", "standardized", "covariance", "correlogram", "pairwise-relative",
-                            "general-relative", "madogram"), help="what to compute (default: semivariogram)")
+                   choices=("semivariogram", "standardized", "standardized-by-lag", "covariance", "correlogram",
+                            "pairwise-relative", "general-relative", "madogram"),
+                   help="what to compute (default: semivariogram). standardized: over the variance of the values "
+                        "(sill 1); standardized-by-lag: over the variance of each lag's own pairs")
     p.add_argument("--transform", choices=("none", "normal-score", "log"), default="none",
                    help="transform the values before the pass (default: none)")
     p.add_argument("--indicator", type=_number(), metavar="THRESHOLD",
@@ -919,6 +921,7 @@ def cmd_variogram(args, console: Console) -> int:
 
     from .errors import TableError
     from .pairs import PairIndex
+    from .pairs import _kernels as k
     from .variogram import (Direction, LagBins, Sets, VolumeGrid, accumulate, fan, indicator, require_variation,
                             variogram_table)
 
@@ -935,6 +938,11 @@ def cmd_variogram(args, console: Console) -> int:
             values = indicator(values, args.indicator)
             require_variation(values, f"the indicator of {data.value!r} at {args.indicator:g} (1 at or below it, "
                               "0 above)")
+        if args.measure in ("pairwise-relative", "general-relative"):
+            below = int(np.sum(values[np.isfinite(values)] < 0))
+            if below:
+                raise UsageError(f"--measure {args.measure}: {below} value(s) of {data.value!r} are below zero; a "
+                                 "relative variogram divides by the pair mean and needs values at or above zero.")
         lag = args.lag
         if lag is None:  # a tenth of a third of the largest extent, rounded
             extent = float(np.max(xyz.max(axis=0) - xyz.min(axis=0)))
@@ -975,6 +983,12 @@ def cmd_variogram(args, console: Console) -> int:
         step(names[2])
         acc = accumulate(xyz, values, sets, hole=hole, depth=depth, index=index, threads=args.threads,
                          dask=args.dask)
+        acc.variance = float(np.nanvar(values, ddof=1))
+        if args.measure == "pairwise-relative" and np.any(values == 0):
+            # pairs of two zeros have no relative difference: count them (a pass on the zeros alone) to leave out
+            zeros = np.where(values == 0, 0.0, np.nan)
+            acc.zero_pairs = accumulate(xyz, zeros, sets, hole=hole, depth=depth, index=index,
+                                        threads=args.threads).stats(0)[:, k.COUNT]
         step(names[3])
         table = variogram_table(acc, args.measure)
         binned = float(table["pairs"].sum())

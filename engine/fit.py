@@ -40,6 +40,9 @@ from .pairs import _kernels as k
 from .variogram import Direction, LagBins, Sets, VolumeGrid, accumulate
 
 
+CV_GROUPS = 5  # groups of holes left out in turn to choose the structures
+
+
 @dataclass
 class FitOptions:
     """Choices of the fit. Lengths in metres, angles in degrees. ``lag_m`` None: from the data."""
@@ -319,17 +322,43 @@ def _starts(experimentals, variance, nugget, n_struct, reach):
     return [[(part / 2, *(r * f for r in ranges)), (part / 2, *ranges)] for f in (0.2, 0.4)]
 
 
-def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, reach, downhole=None,
-                   directions=None):
-    """The final joint fit on the three principal variograms (and the down-hole variogram along the
-    holes' ``directions``, when given) for each candidate (structure count, shape); the choice by BIC.
-    Returns (model, table of candidates, residual rows)."""
+def _fit_rows(experimentals, axes, options: FitOptions, downhole=None, directions=None):
+    """The rows of the final fit: lag vectors (m, K, 3) or (m, 3), values, weights, set of each row
+    (0-2 the principal axes, 3 down the holes) and pairs of each row."""
     h, g, w, which = _principal_data(experimentals, axes, options.min_pairs, options.principal_tolerance_deg)
+    n = np.concatenate([ex.pairs[ex.supported(options.min_pairs) & (ex.distance > 0)] for ex in experimentals])
     if downhole is not None and len(g):
         hd, gd, wd = _downhole_data(downhole, directions, options.min_pairs, w.sum() / 3.0,
                                     bool(options.principal_tolerance_deg))
         h, g, w = np.concatenate([h, hd]), np.concatenate([g, gd]), np.concatenate([w, wd])
         which = np.concatenate([which, np.full(len(gd), 3)])
+        n = np.concatenate([n, downhole.pairs[downhole.supported(options.min_pairs) & (downhole.distance > 0)]])
+    return h, g, w, which, n
+
+
+def cressie_score(model: Model, h, gamma, pairs) -> float:
+    """Sum of N (gamma - model)^2 / model^2 over rows, over the sum of N: the weighted criterion of
+    Cressie ("Fitting variogram models by weighted least squares", Math. Geology 17(5), 1985), the
+    model compared with each row over its cone."""
+    fitted = _model_values(model, h)
+    floor = 1e-3 * max(float(np.mean(np.abs(gamma))), np.finfo(np.float64).tiny)
+    ok = np.isfinite(gamma) & (pairs > 0)
+    return float(np.sum(pairs[ok] * ((gamma[ok] - fitted[ok]) / np.maximum(fitted[ok], floor)) ** 2)
+                 / max(pairs[ok].sum(), 1.0))
+
+
+def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, reach, downhole=None,
+                   directions=None, folds=None):
+    """The final joint fit on the three principal variograms (and the down-hole variogram along the
+    holes' ``directions``, when given) for each candidate (structure count, shape). The choice: with
+    ``folds`` (pairs of (principal, down-hole) experimentals without and with each group of holes),
+    by cross-validation: each candidate refitted without a group and scored on the pairs that hold it
+    by Cressie's criterion; the fewest structures whose score is within one standard error of the
+    best (the one-standard-error rule: Hastie, Tibshirani and Friedman, *The Elements of Statistical
+    Learning*, 2009, section 7.10; common practice); among shapes of one count, the lowest score.
+    Without folds, by BIC on the weighted residuals. Returns (model, table of candidates, residual
+    rows)."""
+    h, g, w, which, _ = _fit_rows(experimentals, axes, options, downhole, directions)
     if len(g) < 4:
         raise FitError("fewer than four supported lags along the principal directions: too few pairs to fit. "
                        "Check --lag and --lags against the drill spacing: the lags must hold pairs of several holes.")
@@ -346,12 +375,40 @@ def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, r
             bic = n * math.log(max(best[1], 1e-300) / n) + 4 * n_struct * math.log(n)
             candidates.append({"structures": n_struct, "shape": shape, "weighted_rss": best[1], "bic": bic,
                                "model": best[0], "residuals": best[2]})
-    chosen = min(candidates, key=lambda c: c["bic"])
+    if folds and len(candidates) > 1:
+        for c in candidates:
+            scores = []
+            start = [(s.sill, *s.ranges_m) for s in c["model"].structures]
+            for (train, train_dh), (test, test_dh) in folds:
+                ht, gt, wt, _, _ = _fit_rows(train, axes, options, train_dh, directions)
+                hv, gv, _, _, nv = _fit_rows(test, axes, options, test_dh, directions)
+                if len(gt) < 4 or len(gv) == 0:
+                    continue
+                try:
+                    fitted, _, _ = fit_lag_vectors(ht, gt, wt, nugget, axes, c["structures"], c["shape"], start,
+                                                   max_range=reach, tolerance=1e-6)
+                except (ValueError, np.linalg.LinAlgError):
+                    fitted = c["model"]
+                scores.append(cressie_score(fitted, hv, gv, nv))
+            c["cv_score"] = float(np.sum(scores)) if scores else float("nan")
+            c["cv_se"] = float(np.std(scores, ddof=1) * math.sqrt(len(scores))) if len(scores) > 1 else 0.0
+        scored = [c for c in candidates if np.isfinite(c["cv_score"])]
+        if scored:
+            top = min(scored, key=lambda c: c["cv_score"])
+            within = [c for c in scored if c["cv_score"] <= top["cv_score"] + top["cv_se"]]
+            fewest = min(c["structures"] for c in within)
+            chosen = min((c for c in scored if c["structures"] == fewest), key=lambda c: c["cv_score"])
+        else:
+            chosen = min(candidates, key=lambda c: c["bic"])
+    else:
+        chosen = min(candidates, key=lambda c: c["bic"])
     names = AXIS_NAMES + ("down_hole",)
-    residuals = [{"axis": names[a], "distance": float(np.linalg.norm(hv[0])), "gamma": float(gv),
-                  "model": float(gv + rv), "residual": float(rv)}
+    residuals = [{"axis": names[a], "distance": float(np.linalg.norm(hv[0] if hv.ndim == 2 else hv)),
+                  "gamma": float(gv), "model": float(gv + rv), "residual": float(rv)}
                  for a, hv, gv, rv in zip(which, h, g, chosen["residuals"])]
     table = [{k2: v for k2, v in c.items() if k2 not in ("model", "residuals")} for c in candidates]
+    for row, c in zip(table, candidates):
+        row["chosen"] = c is chosen
     return chosen["model"], table, residuals
 
 
@@ -511,8 +568,10 @@ class VariogramFitter:
         """Step 5 (the final fit along ``axes`` and the choice of structures) and 6 (the bootstrap)."""
         o = self.options
         reach = bins.reach_m
+        several = (2 if o.structures == "auto" else 1) * len(o.shapes) > 1
+        folds = self._folds(values, hole, index, axes, bins, downhole_bins, principal, downhole) if several else None
         final, candidates, residuals = choose_and_fit(principal, axes, variance, nugget, o, reach, downhole,
-                                                      directions)
+                                                      directions, folds)
         result = FitResult(final, variance, nugget, int(sum(ex.pairs.sum() for ex in principal)), lag, search,
                            candidates, residuals, principal, downhole,
                            warnings=self.notes_ + unresolved_ranges(final, xyz, reach)
@@ -523,6 +582,41 @@ class VariogramFitter:
             result.bootstrap = self._bootstrap(xyz, values, hole, depth, index, result, bins, downhole_bins, directions)
         self.result_ = result
         return self
+
+    def _folds(self, values, hole, index, axes, bins, downhole_bins, principal, downhole):
+        """For the choice of structures: the holes dealt at random (seeded) into CV_GROUPS groups; per
+        group, the principal and down-hole variograms without it (one replicate pass) and of the pairs
+        that hold it (all pairs less those). A list of ((train, train down-hole), (test, test
+        down-hole))."""
+        o = self.options
+        ids, code = np.unique(hole, return_inverse=True)
+        groups = min(CV_GROUPS, len(ids))
+        if groups < 2:
+            return None
+        group_of_hole = np.random.default_rng(o.seed).permutation(len(ids)) % groups
+        weights = np.ones((len(values), groups))
+        weights[np.arange(len(values)), group_of_hole[code]] = 0.0
+        sets = Sets(directions=[_direction(a, o.principal_tolerance_deg) for a in axes], directional_bins=bins,
+                    downhole=downhole_bins, max_distance_m=max(bins.reach_m, downhole_bins.reach_m))
+        plan = sets.plan()
+        sums = index.run_replicates(values, plan, weights, threads=o.threads)
+        width = bins.count + 1
+        firsts = [plan.layout[k.L_DIR_SLOT] + a * width for a in range(3)]
+
+        def apart(full, train):
+            n = full.pairs - train.pairs
+            with np.errstate(invalid="ignore", divide="ignore"):
+                g = np.where(n > 0, (full.pairs * np.nan_to_num(full.gamma) - train.pairs * np.nan_to_num(train.gamma))
+                             / n, np.nan)
+            return Experimental(full.distance, g, n)
+
+        out = []
+        for r in range(groups):
+            train = [_from_replicate_sums(sums, f, bins.count, ex.distance, r) for f, ex in zip(firsts, principal)]
+            train_dh = _from_replicate_sums(sums, plan.layout[k.L_DH_SLOT], downhole_bins.count, downhole.distance, r)
+            test = [apart(f, t) for f, t in zip(principal, train)]
+            out.append(((train, train_dh), (test, apart(downhole, train_dh))))
+        return out
 
     def _light_pass(self, values, index, directions, bins):
         """Directional variograms (lag-bin centres as distances) from pair counts and squared
@@ -814,7 +908,12 @@ def model_json(result: FitResult, variable: str, domain: str | None) -> dict:
         "nugget_from": result.nugget_estimate.method if result.nugget_estimate else None,
         "weights": "pairs / mean lag distance, normalised to mean 1; the down-hole lags together weigh as much as "
                    "one principal direction",
-        "criterion": "BIC = n ln(weighted RSS / n) + parameters ln n",
+        "criterion": ("cross-validation over 5 groups of holes: each candidate refitted without a group and scored on "
+                      "the pairs that hold it by sum N (gamma - model)^2 / model^2 / sum N (Cressie 1985); the fewest "
+                      "structures within one standard error of the best score, then the best shape"
+                      if any("cv_score" in c for c in result.candidates)
+                      else "BIC = n ln(weighted RSS / n) + parameters ln n (one candidate, or too few holes to "
+                           "cross-validate)"),
         "candidates": result.candidates,
         "search": result.search,
         "residuals": result.residuals,

@@ -33,8 +33,8 @@ from .orientation import vector_from_trend_plunge
 from .pairs import PairIndex
 from .pairs import _kernels as k
 
-MEASURES = ("semivariogram", "standardized", "covariance", "correlogram", "pairwise-relative",
-            "general-relative", "madogram")
+MEASURES = ("semivariogram", "standardized", "standardized-by-lag", "covariance", "correlogram",
+            "pairwise-relative", "general-relative", "madogram")
 
 
 @dataclass(frozen=True)
@@ -276,11 +276,18 @@ def indicator(values, threshold: float) -> np.ndarray:
 # --------------------------------------------------------------------------------------------
 
 
-def measure_from_sums(stats: np.ndarray, measure: str = "semivariogram") -> np.ndarray:
+def measure_from_sums(stats: np.ndarray, measure: str = "semivariogram", variance: float | None = None,
+                      zero_pairs=None) -> np.ndarray:
     """A measure per bin from the 10 sums of one variable, ``stats`` (bins, 10). NaN where a bin has
-    no pairs or the measure is undefined."""
+    no pairs or the measure is undefined. ``standardized`` divides by ``variance``, the domain's (so
+    that the sill is one, as the trade means it); ``standardized-by-lag`` by the variance of each lag's
+    own pairs (heads and tails together). ``pairwise-relative`` averages over the pairs whose mean is
+    not zero: ``zero_pairs`` (bins,) counts the others (pairs of two zeros) to leave out."""
     if measure not in MEASURES:
         raise UsageError(f"measure {measure!r}: use one of {', '.join(MEASURES)}")
+    if measure == "standardized" and not (variance is not None and variance > 0):
+        raise UsageError("measure 'standardized' divides by the domain's variance: give it (or use "
+                         "'standardized-by-lag').")
     s = np.asarray(stats, dtype=np.float64)
     n = s[:, k.COUNT]
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -291,7 +298,10 @@ def measure_from_sums(stats: np.ndarray, measure: str = "semivariogram") -> np.n
         elif measure == "madogram":
             out = s[:, k.SUM_ABS] / (2 * n)
         elif measure == "pairwise-relative":
-            out = s[:, k.SUM_PR] / (2 * n)
+            used = n - (0.0 if zero_pairs is None else np.asarray(zero_pairs, dtype=np.float64))
+            out = np.where(used > 0, s[:, k.SUM_PR] / (2 * used), np.nan)
+        elif measure == "standardized":
+            out = gamma / variance
         elif measure == "general-relative":
             out = gamma / (0.5 * (mh + mt)) ** 2
         else:
@@ -302,7 +312,7 @@ def measure_from_sums(stats: np.ndarray, measure: str = "semivariogram") -> np.n
                 vh = s[:, k.SUM_H2] / n - mh * mh
                 vt = s[:, k.SUM_T2] / n - mt * mt
                 out = cov / np.sqrt(vh * vt)
-            else:  # standardized: by the variance of the pairs' data (heads and tails together)
+            else:  # standardized-by-lag: by the variance of the pairs' data (heads and tails together)
                 m = (s[:, k.SUM_H] + s[:, k.SUM_T]) / (2 * n)
                 var = (s[:, k.SUM_H2] + s[:, k.SUM_T2]) / (2 * n) - m * m
                 out = gamma / var
@@ -319,6 +329,8 @@ class Accumulation:
     n_values: int
     candidates: int
     accepted: int
+    variance: float | None = None  # the domain's, for the standardized measure
+    zero_pairs: np.ndarray | None = None  # per slot, pairs of two zeros (left out of the pairwise relative)
 
     def stats(self, variable: int = 0) -> np.ndarray:
         return self.sums[:, variable * k.N_STATS:(variable + 1) * k.N_STATS]
@@ -357,7 +369,15 @@ class Accumulation:
         plane[ny + 1:, :] = True
         plane[ny, nx + 1:] = True
         full[upper] = swap[upper]
-        values = measure_from_sums(full.reshape(-1, k.N_STATS), measure).reshape(full.shape[:3])
+        zeros = None
+        if self.zero_pairs is not None:
+            stored = self.zero_pairs[start:start + v.stored_cells].reshape(nz + 1, 2 * ny + 1, 2 * nx + 1)
+            zeros = np.zeros(full.shape[:3])
+            for j in range(nz + 1):
+                zeros[nz - j] += stored[j]
+            zeros[upper] = zeros[::-1, ::-1, ::-1][upper]
+            zeros = zeros.ravel()
+        values = measure_from_sums(full.reshape(-1, k.N_STATS), measure, self.variance, zeros).reshape(full.shape[:3])
         return values, full[..., k.COUNT]
 
 
@@ -417,13 +437,14 @@ def variogram_table(acc: Accumulation, measure: str = "semivariogram", variable:
 
     def rows(name, start, count, lag_m, direction="", trend=np.nan, plunge=np.nan):
         part = stats[start + 1:start + count + 1]
+        zeros = None if acc.zero_pairs is None else acc.zero_pairs[start + 1:start + count + 1]
         n = part[:, k.COUNT]
         with np.errstate(invalid="ignore", divide="ignore"):
             frames.append(pd.DataFrame({
                 "set": name, "direction": direction, "trend": trend, "plunge": plunge,
                 "lag": np.arange(1, count + 1, dtype=np.float64) * lag_m,
                 "distance": np.where(n > 0, part[:, k.SUM_D] / n, np.nan), "pairs": n,
-                "gamma": measure_from_sums(part, measure),
+                "gamma": measure_from_sums(part, measure, acc.variance, zeros),
                 "mean_head": np.where(n > 0, part[:, k.SUM_H] / n, np.nan),
                 "mean_tail": np.where(n > 0, part[:, k.SUM_T] / n, np.nan),
             }))

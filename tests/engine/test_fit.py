@@ -61,6 +61,10 @@ def test_recovery_of_an_oblique_anisotropic_truth(recoveries):
     print("\n".join(lines))
     assert good >= 7, "\n".join(lines)
     assert nugget_ok >= 7, "\n".join(lines)
+    # the truth has one structure: cross-validation over groups of holes keeps it to one where BIC on the
+    # weighted residuals fitted two (seed 9: semi-major +72%, minor +134%)
+    single = sum(len(result.model.structures) == 1 for result, _, _ in recoveries)
+    assert single >= 8, f"{single} of {len(recoveries)} seeds fitted with one structure"
 
 
 @pytest.mark.slow

@@ -321,11 +321,66 @@ def test_measures_from_sums():
     assert measure_from_sums(s, "covariance")[0] == pytest.approx(cov)
     assert measure_from_sums(s, "correlogram")[0] == pytest.approx(np.corrcoef(h, t)[0, 1])
     both = np.r_[h, t]
-    assert measure_from_sums(s, "standardized")[0] == pytest.approx(((h - t) ** 2).mean() / 2 / both.var())
+    assert measure_from_sums(s, "standardized-by-lag")[0] == pytest.approx(((h - t) ** 2).mean() / 2 / both.var())
+    # the trade's standardized variogram divides by the domain's variance: its sill is one (review finding: it
+    # divided by each lag's own variance)
+    assert measure_from_sums(s, "standardized", variance=2.5)[0] == pytest.approx(((h - t) ** 2).mean() / 2 / 2.5)
+    with pytest.raises(UsageError):
+        measure_from_sums(s, "standardized")
     assert measure_from_sums(s, "general-relative")[0] == pytest.approx(
         ((h - t) ** 2).mean() / 2 / ((h.mean() + t.mean()) / 2) ** 2)
     assert measure_from_sums(s, "pairwise-relative")[0] == pytest.approx(
         (((h - t) / ((h + t) / 2)) ** 2).mean() / 2)
+
+
+def test_pairwise_relative_leaves_out_pairs_of_two_zeros():
+    # by its definition (common practice): the mean over pairs of ((h - t) / ((h + t) / 2))^2 / 2; a pair of two
+    # zeros has no relative difference and is not a pair of this measure (review finding: it was counted as 0)
+    h = np.array([1.0, 0.0, 2.0, 0.0])
+    t = np.array([3.0, 0.0, 1.0, 4.0])
+    s = np.zeros((1, k.N_STATS))
+    kept = (h + t) > 0
+    s[0, k.COUNT] = 4
+    s[0, k.SUM_PR] = (((h - t)[kept] / ((h + t)[kept] / 2)) ** 2).sum()
+    truth = (((h - t)[kept] / ((h + t)[kept] / 2)) ** 2).mean() / 2
+    assert measure_from_sums(s, "pairwise-relative", zero_pairs=np.array([1.0]))[0] == pytest.approx(truth)
+
+
+def test_relative_measures_refuse_negative_values(tmp_path, capsys):
+    import pandas as pd
+
+    from engine.cli import main
+
+    rng = np.random.default_rng(3)
+    frame = pd.DataFrame({"hole": np.repeat(["A", "B", "C"], 20), "from": np.tile(np.arange(20.0), 3),
+                          "to": np.tile(np.arange(1.0, 21.0), 3), "x": np.repeat([0.0, 10.0, 20.0], 20),
+                          "y": 0.0, "z": -np.tile(np.arange(20.0), 3), "au": rng.normal(0.0, 1.0, 60)})
+    frame.to_csv(tmp_path / "c.csv", index=False)
+    code = main(["variogram", "--composites", str(tmp_path / "c.csv"), "--value", "au", "--measure",
+                 "pairwise-relative", "--out", str(tmp_path / "o")])
+    assert code == 2 and "below zero" in capsys.readouterr().err
+
+
+def test_the_pairwise_relative_command_counts_no_pair_of_two_zeros(tmp_path):
+    # the command's zero pass against a direct count: grades with zeros along one line
+    import pandas as pd
+
+    from engine.cli import main
+
+    x = np.arange(40.0)
+    au = np.where(np.arange(40) % 3 == 0, 0.0, 1.0 + (np.arange(40) % 5))
+    frame = pd.DataFrame({"hole": [f"H{i}" for i in range(40)], "from": 0.0, "to": 1.0, "x": x, "y": 0.0,
+                          "z": 0.0, "au": au})
+    frame.to_csv(tmp_path / "c.csv", index=False)
+    assert main(["variogram", "--composites", str(tmp_path / "c.csv"), "--value", "au", "--measure",
+                 "pairwise-relative", "--omni", "--lag", "3", "--lags", "2", "--lag-tolerance", "0.5",
+                 "--out", str(tmp_path / "o")]) == 0
+    table = pd.read_csv(tmp_path / "o" / "variograms.csv")
+    row = table[(table["set"] == "omni") & (table["lag"] == 3.0)].iloc[0]
+    h, t = au[:-3], au[3:]
+    kept = (h + t) > 0
+    truth = (((h - t)[kept] / ((h + t)[kept] / 2)) ** 2).mean() / 2
+    assert row["gamma"] == pytest.approx(truth, rel=1e-9)
 
 
 def test_cross_semivariogram_and_transforms():
