@@ -1162,8 +1162,10 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, doma
     rows = []
     for a, (name, ex) in enumerate(zip(("major", "semi_major", "minor"), result.principal)):
         d = np.nan_to_num(ex.distance)
+        # the model over each lag's pairs' spread of directions (or over its cone where that is not known)
         cone = cone_directions(model.axes[a], options.principal_tolerance_deg)
-        in_cone = model.gamma((d[:, None, None] * cone[None, :, :]).reshape(-1, 3)).reshape(len(d), -1).mean(axis=1)
+        spread = ex.vectors if ex.vectors is not None else np.broadcast_to(cone, (len(d),) + cone.shape)
+        in_cone = model.gamma((d[:, None, None] * spread).reshape(-1, 3)).reshape(len(d), -1).mean(axis=1)
         known = np.isfinite(ex.distance)
         rows.append(pd.DataFrame({"set": name, "distance": ex.distance, "pairs": ex.pairs, "gamma": ex.gamma,
                                   "model": np.where(known, model.gamma_along(model.axes[a], d), np.nan),

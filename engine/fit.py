@@ -104,6 +104,7 @@ class Experimental:
     distance: np.ndarray
     gamma: np.ndarray
     pairs: np.ndarray
+    vectors: np.ndarray | None = None  # (lags, K, 3) unit directions spread as each lag's pairs are (pair_directions)
 
     def supported(self, min_pairs):
         return (self.pairs >= min_pairs) & np.isfinite(self.gamma) & np.isfinite(self.distance)
@@ -196,13 +197,15 @@ def _unpack(p, n_struct, shape, axes0, nugget, fit_rotation, unit=1.0):
 
 
 def fit_lag_vectors(h, gamma, weight, nugget, axes0, n_struct, shape, start, fit_rotation=False, max_range=None,
-                    nugget_start=None, tolerance=1e-8):
+                    nugget_start=None, tolerance=1e-8, along=None):
     """Weighted least squares of a model on experimental values at lag vectors ``h`` (m, 3).
 
     ``nugget``: fixed, or None to fit it from ``nugget_start``. ``start``: per structure (sill,
     major, semi, minor), ranges in metres. Bounds: sills and nugget >= 0, ranges major >= semi-major
     >= minor > 0 (as ratios in [0.02, 1]), rotation within 0.6 radian of ``axes0``; ``tolerance``
-    of scipy's least_squares (x, f and gradient). Returns (model,
+    of scipy's least_squares (x, f and gradient). ``along``: (rows, direction, length) for rows that
+    are down-hole lags between composites of ``length`` along a unit ``direction``: the model is
+    compared with them regularised over the composites (regularised_values). Returns (model,
     weighted residual sum of squares, residuals)."""
     from scipy.optimize import least_squares
 
@@ -228,15 +231,44 @@ def fit_lag_vectors(h, gamma, weight, nugget, axes0, n_struct, shape, start, fit
         lo += [-0.6, -0.6, -0.6]
         hi += [0.6, 0.6, 0.6]
 
+    def values(m):
+        out = _model_values(m, h)
+        if along is not None:
+            rows, direction, length = along
+            out[rows] = regularised_values(m, direction, _row_lengths(h[rows]), length)
+        return out
+
     def residual(p):
         m = _unpack(p, n_struct, shape, axes0, nugget, fit_rotation, scale)
-        return sw * (_model_values(m, h) - gamma)
+        return sw * (values(m) - gamma)
 
     result = least_squares(residual, np.array(x0), bounds=(np.array(lo), np.array(hi)), x_scale="jac",
                            max_nfev=100 * len(x0), xtol=tolerance, ftol=tolerance, gtol=tolerance)
     model = _unpack(result.x, n_struct, shape, axes0, nugget, fit_rotation, scale)
-    r = _model_values(model, h) - gamma
+    r = values(model) - gamma
     return model, float(np.sum(weight * r * r)), r
+
+
+def _row_lengths(h) -> np.ndarray:
+    """The separation of each row of lag vectors ((m, 3), or (m, K, 3): its first vector)."""
+    h = np.asarray(h, dtype=np.float64)
+    return np.linalg.norm(h if h.ndim == 2 else h[:, 0, :], axis=1)
+
+
+def regularised_values(model: Model, direction, distance, length: float) -> np.ndarray:
+    """The model between two composites of ``length`` metres whose centres lie ``distance`` apart along
+    a unit ``direction``: nugget + sum of sill x [gbar(v, v_h) - gbar(v, v)] (Journel and Huijbregts,
+    1978, ch. II), each structure along the line at its range in that direction. The nugget is the
+    model's (already at composite support)."""
+    from .nugget import regularised_increment
+
+    u = np.asarray(direction, dtype=np.float64)
+    d = np.asarray(distance, dtype=np.float64)
+    out = np.full(d.shape, float(model.nugget))
+    for s in model.structures:
+        a = 1.0 / np.linalg.norm((model.axes @ u) / np.asarray(s.ranges_m, dtype=np.float64))
+        out += s.sill * regularised_increment(s.shape, a, d, length, length)
+    return out
 
 
 def _model_values(model, h):
@@ -263,6 +295,47 @@ def cone_directions(axis, tolerance_deg, rings: int = 3, per_ring: int = 8) -> n
     return np.array(out)
 
 
+def pair_directions(acc, first_slot: int, count: int, axis, tolerance_deg: float, rings: int = 3,
+                    per_ring: int = 8) -> np.ndarray:
+    """Per lag bin of a directional set, ``rings * per_ring`` unit vectors spread about the bin's
+    dominant pair direction as its pairs are. ``acc`` is a pass whose three values are the points'
+    east, north and up: its sums of squared and crossed differences are, per bin, the second moments
+    of the pairs' lag vectors (sign-free). With eigenvalues l1 >= l2 >= l3 and vectors e1, e2, e3,
+    the vectors are e1 + r (sqrt(l2 / l1) cos(phi) e2 + sqrt(l3 / l1) sin(phi) e3), normalised, on rings
+    whose mean r^2 is 2, so that their transverse second moments match the pairs'. A bin with fewer
+    than 3 pairs falls back to the cone's even spread (cone_directions)."""
+    slots = np.arange(first_slot + 1, first_slot + count + 1)
+    n = acc.stats(0)[slots, k.COUNT]
+    m = np.zeros((count, 3, 3))
+    for a in range(3):
+        m[:, a, a] = acc.stats(a)[slots, k.SUM_SQ]
+    for a, b in ((0, 1), (0, 2), (1, 2)):
+        m[:, a, b] = m[:, b, a] = acc.cross(a, b)[1][slots]
+    axis = np.asarray(axis, dtype=np.float64)
+    even = cone_directions(axis, tolerance_deg, rings, per_ring)
+    out = np.repeat(even[None, :, :], count, axis=0)
+    radius = np.sqrt(4.0 * (np.arange(rings) + 0.5) / rings)
+    for b in range(count):
+        if n[b] < 3:
+            continue
+        values, vectors = np.linalg.eigh(m[b] / n[b])
+        l1, l2, l3 = values[2], values[1], values[0]
+        if not l1 > 0:
+            continue
+        e1, e2, e3 = vectors[:, 2], vectors[:, 1], vectors[:, 0]
+        if e1 @ axis < 0:
+            e1 = -e1
+        q2, q3 = math.sqrt(max(l2, 0.0) / l1), math.sqrt(max(l3, 0.0) / l1)
+        pts = []
+        for j in range(rings):
+            for q in range(per_ring):
+                phi = 2.0 * math.pi * (q + 0.5 * (j % 2)) / per_ring
+                v = e1 + radius[j] * (q2 * math.cos(phi) * e2 + q3 * math.sin(phi) * e3)
+                pts.append(v / np.linalg.norm(v))
+        out[b] = np.array(pts)
+    return out
+
+
 def _principal_data(experimentals, axes, min_pairs, tolerance_deg=None):
     """Lag vectors, values, weights and axis of every supported lag. With ``tolerance_deg`` each
     lag's vectors span its directional cone (m, K, 3), so that the model is compared with what the
@@ -270,7 +343,9 @@ def _principal_data(experimentals, axes, min_pairs, tolerance_deg=None):
     h, g, w, which = [], [], [], []
     for a, ex in enumerate(experimentals):
         ok = ex.supported(min_pairs) & (ex.distance > 0)
-        if tolerance_deg:
+        if ex.vectors is not None:
+            h.append(ex.distance[ok, None, None] * ex.vectors[ok])
+        elif tolerance_deg:
             h.append(ex.distance[ok, None, None] * cone_directions(axes[a], tolerance_deg)[None, :, :])
         else:
             h.append(ex.distance[ok, None] * axes[a][None, :])
@@ -324,7 +399,8 @@ def _starts(experimentals, variance, nugget, n_struct, reach):
 
 def _fit_rows(experimentals, axes, options: FitOptions, downhole=None, directions=None):
     """The rows of the final fit: lag vectors (m, K, 3) or (m, 3), values, weights, set of each row
-    (0-2 the principal axes, 3 down the holes) and pairs of each row."""
+    (0-2 the principal axes, 3 down the holes) and pairs of each row. (The down-hole rows are compared
+    with the model regularised over the composites: see ``_along``.)"""
     h, g, w, which = _principal_data(experimentals, axes, options.min_pairs, options.principal_tolerance_deg)
     n = np.concatenate([ex.pairs[ex.supported(options.min_pairs) & (ex.distance > 0)] for ex in experimentals])
     if downhole is not None and len(g):
@@ -336,11 +412,24 @@ def _fit_rows(experimentals, axes, options: FitOptions, downhole=None, direction
     return h, g, w, which, n
 
 
-def cressie_score(model: Model, h, gamma, pairs) -> float:
+def _along(which, directions, support_m):
+    """fit_lag_vectors' ``along`` for the down-hole rows (set 3): their rows, the holes' mean
+    direction and the composite length; None without a support length or down-hole rows."""
+    rows = np.flatnonzero(np.asarray(which) == 3)
+    if not support_m or len(rows) == 0 or directions is None:
+        return None
+    mean = np.asarray(directions, dtype=np.float64).mean(axis=0)
+    return rows, mean / max(np.linalg.norm(mean), 1e-12), float(support_m)
+
+
+def cressie_score(model: Model, h, gamma, pairs, along=None) -> float:
     """Sum of N (gamma - model)^2 / model^2 over rows, over the sum of N: the weighted criterion of
     Cressie ("Fitting variogram models by weighted least squares", Math. Geology 17(5), 1985), the
-    model compared with each row over its cone."""
+    model compared with each row over its cone (and, for ``along``'s rows, regularised)."""
     fitted = _model_values(model, h)
+    if along is not None:
+        rows, direction, length = along
+        fitted[rows] = regularised_values(model, direction, _row_lengths(h[rows]), length)
     floor = 1e-3 * max(float(np.mean(np.abs(gamma))), np.finfo(np.float64).tiny)
     ok = np.isfinite(gamma) & (pairs > 0)
     return float(np.sum(pairs[ok] * ((gamma[ok] - fitted[ok]) / np.maximum(fitted[ok], floor)) ** 2)
@@ -348,7 +437,7 @@ def cressie_score(model: Model, h, gamma, pairs) -> float:
 
 
 def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, reach, downhole=None,
-                   directions=None, folds=None):
+                   directions=None, folds=None, data_axes=None, support_m=None):
     """The final joint fit on the three principal variograms (and the down-hole variogram along the
     holes' ``directions``, when given) for each candidate (structure count, shape). The choice: with
     ``folds`` (pairs of (principal, down-hole) experimentals without and with each group of holes),
@@ -356,9 +445,12 @@ def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, r
     by Cressie's criterion; the fewest structures whose score is within one standard error of the
     best (the one-standard-error rule: Hastie, Tibshirani and Friedman, *The Elements of Statistical
     Learning*, 2009, section 7.10; common practice); among shapes of one count, the lowest score.
-    Without folds, by BIC on the weighted residuals. Returns (model, table of candidates, residual
-    rows)."""
-    h, g, w, which, _ = _fit_rows(experimentals, axes, options, downhole, directions)
+    Without folds, by BIC on the weighted residuals. ``data_axes``: the axes the principal variograms
+    were computed along, when not ``axes`` (the model's). ``support_m``: the composites' length, to
+    compare the down-hole lags with the model regularised over them. Returns (model, table of
+    candidates, residual rows)."""
+    h, g, w, which, _ = _fit_rows(experimentals, axes if data_axes is None else data_axes, options, downhole,
+                                  directions)
     if len(g) < 4:
         raise FitError("fewer than four supported lags along the principal directions: too few pairs to fit. "
                        "Check --lag and --lags against the drill spacing: the lags must hold pairs of several holes.")
@@ -368,7 +460,8 @@ def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, r
         for shape in options.shapes:
             best = None
             for start in _starts(experimentals, variance, nugget, n_struct, reach):
-                model, wrss, r = fit_lag_vectors(h, g, w, nugget, axes, n_struct, shape, start, max_range=reach)
+                model, wrss, r = fit_lag_vectors(h, g, w, nugget, axes, n_struct, shape, start, max_range=reach,
+                                                 along=_along(which, directions, support_m))
                 if best is None or wrss < best[1]:
                     best = (model, wrss, r)
             n = len(g)
@@ -380,16 +473,17 @@ def choose_and_fit(experimentals, axes, variance, nugget, options: FitOptions, r
             scores = []
             start = [(s.sill, *s.ranges_m) for s in c["model"].structures]
             for (train, train_dh), (test, test_dh) in folds:
-                ht, gt, wt, _, _ = _fit_rows(train, axes, options, train_dh, directions)
-                hv, gv, _, _, nv = _fit_rows(test, axes, options, test_dh, directions)
+                ht, gt, wt, wh, _ = _fit_rows(train, axes, options, train_dh, directions)
+                hv, gv, _, wv, nv = _fit_rows(test, axes, options, test_dh, directions)
                 if len(gt) < 4 or len(gv) == 0:
                     continue
                 try:
                     fitted, _, _ = fit_lag_vectors(ht, gt, wt, nugget, axes, c["structures"], c["shape"], start,
-                                                   max_range=reach, tolerance=1e-6)
+                                                   max_range=reach, tolerance=1e-6,
+                                                   along=_along(wh, directions, support_m))
                 except (ValueError, np.linalg.LinAlgError):
                     fitted = c["model"]
-                scores.append(cressie_score(fitted, hv, gv, nv))
+                scores.append(cressie_score(fitted, hv, gv, nv, _along(wv, directions, support_m)))
             c["cv_score"] = float(np.sum(scores)) if scores else float("nan")
             c["cv_se"] = float(np.std(scores, ddof=1) * math.sqrt(len(scores))) if len(scores) > 1 else 0.0
         scored = [c for c in candidates if np.isfinite(c["cv_score"])]
@@ -571,7 +665,7 @@ class VariogramFitter:
         several = (2 if o.structures == "auto" else 1) * len(o.shapes) > 1
         folds = self._folds(values, hole, index, axes, bins, downhole_bins, principal, downhole) if several else None
         final, candidates, residuals = choose_and_fit(principal, axes, variance, nugget, o, reach, downhole,
-                                                      directions, folds)
+                                                      directions, folds, support_m=float(downhole_bins.lag_m))
         result = FitResult(final, variance, nugget, int(sum(ex.pairs.sum() for ex in principal)), lag, search,
                            candidates, residuals, principal, downhole,
                            warnings=self.notes_ + unresolved_ranges(final, xyz, reach)
@@ -582,6 +676,18 @@ class VariogramFitter:
             result.bootstrap = self._bootstrap(xyz, values, hole, depth, index, result, bins, downhole_bins, directions)
         self.result_ = result
         return self
+
+    def _with_pair_directions(self, xyz, index, axes, bins, principal):
+        """The principal variograms with, per lag, vectors spread as the lag's pairs are (one pass whose
+        values are the coordinates; see pair_directions)."""
+        o = self.options
+        sets = Sets(directions=[_direction(a, o.principal_tolerance_deg) for a in axes], directional_bins=bins)
+        acc = accumulate(xyz, xyz - xyz.mean(axis=0), sets, index=index, threads=o.threads)
+        width = bins.count + 1
+        first = acc.plan.layout[k.L_DIR_SLOT]
+        return [Experimental(ex.distance, ex.gamma, ex.pairs,
+                             pair_directions(acc, first + a * width, bins.count, axes[a], o.principal_tolerance_deg))
+                for a, ex in enumerate(principal)]
 
     def _folds(self, values, hole, index, axes, bins, downhole_bins, principal, downhole):
         """For the choice of structures: the holes dealt at random (seeded) into CV_GROUPS groups; per
@@ -608,11 +714,12 @@ class VariogramFitter:
             with np.errstate(invalid="ignore", divide="ignore"):
                 g = np.where(n > 0, (full.pairs * np.nan_to_num(full.gamma) - train.pairs * np.nan_to_num(train.gamma))
                              / n, np.nan)
-            return Experimental(full.distance, g, n)
+            return Experimental(full.distance, g, n, full.vectors)
 
         out = []
         for r in range(groups):
-            train = [_from_replicate_sums(sums, f, bins.count, ex.distance, r) for f, ex in zip(firsts, principal)]
+            train = [_with_vectors(_from_replicate_sums(sums, f, bins.count, ex.distance, r), ex.vectors)
+                     for f, ex in zip(firsts, principal)]
             train_dh = _from_replicate_sums(sums, plan.layout[k.L_DH_SLOT], downhole_bins.count, downhole.distance, r)
             test = [apart(f, t) for f, t in zip(principal, train)]
             out.append(((train, train_dh), (test, apart(downhole, train_dh))))
@@ -665,7 +772,8 @@ class VariogramFitter:
         self.volume_ = self.principal_ = acc
         frame, _ = hole_frame(xyz, hole)
         self.frame_volume_ = (frame, bins.lag_m, float(downhole_bins.lag_m), reach)
-        principal, downhole = directional_experimentals(acc), downhole_experimental(acc)
+        principal = self._with_pair_directions(xyz, index, axes, bins, directional_experimentals(acc))
+        downhole = downhole_experimental(acc)
         return self._finish(xyz, values, hole, depth, index, axes, principal, downhole, variance, bins, downhole_bins,
                             nugget, directions, lag, {"axes_fixed": True}, step)
 
@@ -719,7 +827,7 @@ class VariogramFitter:
             axes = best[0].axes
             acc = self._principal_pass(xyz, values, hole, depth, index, axes, bins, downhole=downhole_bins)
             self.principal_ = acc  # along the refined axes, with the down-hole set
-            principal = directional_experimentals(acc)
+            principal = self._with_pair_directions(xyz, index, axes, bins, directional_experimentals(acc))
         return Model(nugget, first.structures, axes), principal, downhole
 
     def _bootstrap(self, xyz, values, hole, depth, index, result, bins, downhole_bins, directions):
@@ -773,11 +881,21 @@ class VariogramFitter:
                     if len(data) < 20:
                         raise FitError("too few volume cells")
                     w_v = data.pairs / np.linalg.norm(data.h, axis=1)
-                    refined, _, _ = fit_lag_vectors(data.h, data.gamma, w_v / w_v.mean(), nugget, main.axes, n_struct,
-                                                    shape, start, fit_rotation=True, max_range=reach)
-                principal = [_from_replicate_sums(sums, f, bins.count, ex.distance, r)
+                    # from the fitted axes and from them turned a quarter about the major and about the minor:
+                    # a replicate may find another order of the axes, as the fit itself might have
+                    best = None
+                    for turned in swapped_axes(main.axes):
+                        candidate, wrss, _ = fit_lag_vectors(data.h, data.gamma, w_v / w_v.mean(), nugget, turned,
+                                                             n_struct, shape, start, fit_rotation=True,
+                                                             max_range=reach)
+                        if best is None or wrss < best[1]:
+                            best = (candidate, wrss)
+                    refined = best[0]
+                principal = [_with_vectors(_from_replicate_sums(sums, f, bins.count, ex.distance, r), ex.vectors)
                              for f, ex in zip(dir_first, result.principal)]
-                fitted, _, _ = choose_and_fit(principal, refined.axes, variance, nugget, one, reach, dh, directions)
+                # the replicate's variograms lie along the fitted axes; its model turns with its own axes
+                fitted, _, _ = choose_and_fit(principal, refined.axes, variance, nugget, one, reach, dh, directions,
+                                              data_axes=main.axes, support_m=float(downhole_bins.lag_m))
             except (FitError, ValueError, np.linalg.LinAlgError):
                 failed += 1
                 continue
@@ -792,8 +910,10 @@ class VariogramFitter:
         out = {"replicates": o.bootstrap, "failed": failed, "resampled": unit, "groups": int(len(ids)),
                "method": f"{unit} resampled with replacement, each weighted by its draws (copies of a group do not "
                          "pair with each other); per replicate its nugget from its samples down the holes, its axes "
-                         "from a fit with rotation on its variogram volume, its ranges from its directional and "
-                         "down-hole variograms"}
+                         "from a fit with rotation on its variogram volume started from the fitted axes and from them "
+                         "turned a quarter about the major and about the minor (the lowest residuals kept), its "
+                         "ranges from its directional and down-hole variograms along its own axes; what the user "
+                         "fixed stays fixed"}
         if done >= 2:
             out["axis_angle_deg"] = {n: {"median": float(np.median(v)), "p95": float(np.percentile(v, 95))}
                                      for n, v in angles.items()}
@@ -813,6 +933,10 @@ class VariogramFitter:
     def _volume_grid(self, reach):
         nx, ny, nz = self.options.volume_cells
         return VolumeGrid((reach / (nx + 0.5), reach / (ny + 0.5), reach / (nz + 0.5)), (nx, ny, nz))
+
+
+def _with_vectors(ex: Experimental, vectors) -> Experimental:
+    return Experimental(ex.distance, ex.gamma, ex.pairs, vectors)
 
 
 def _hole_blocks(xyz, hole, block_m):

@@ -217,3 +217,36 @@ def test_fixed_parts_are_kept_and_said(tmp_path):
     assert np.allclose(Model.from_json(refit).axes, Model.from_json(model).axes, atol=1e-9)
     assert len(refit["structures"]) == len(model["structures"]) and refit["fit"]["fitted"] == ["nugget", "sills",
                                                                                                "ranges"]
+
+
+def test_a_range_shorter_than_the_first_lag_with_pairs_is_warned_about():
+    # issue 13, item 0: no pair is that close along the axis, so the range is not resolved; along the holes the
+    # down-hole variogram's lags count (a range there shorter than the hole spacing is seen by them)
+    from engine.fit import Experimental, short_of_the_data
+    from engine.model import Structure
+
+    axes = np.eye(3)[[0, 1, 2]]
+    model = Model(0.1, [Structure("spherical", 0.9, (120.0, 60.0, 8.0))], axes)
+    d = np.arange(1.0, 13.0) * 22.5
+    principal = [Experimental(d, np.full(12, 0.9), np.full(12, 100.0)) for _ in range(3)]
+    downhole = Experimental(np.arange(1.0, 11.0) * 2.0, np.linspace(0.2, 0.9, 10), np.full(10, 500.0))
+    across = np.tile([1.0, 0.0, 0.0], (24, 1))  # holes along east: the minor (vertical) gets no down-hole lags
+    warned = short_of_the_data(model, principal, downhole, across, 30)
+    assert len(warned) == 1 and "minor range (8.0 m)" in warned[0] and "22.5 m" in warned[0]
+    vertical = np.tile([0.0, 0.0, -1.0], (24, 1))  # vertical holes: the 2 m lags resolve the 8 m vertical range
+    assert short_of_the_data(model, principal, downhole, vertical, 30) == []
+
+
+def test_down_hole_lags_are_compared_with_the_regularised_model():
+    # analytic (Journel and Huijbregts 1978, ch. II): for a linear variogram b h, composites of length l whose
+    # centres are d >= l apart have gamma_v(d) = b (d - l / 3); an exponential of very long range is linear
+    # near the origin with b = 3 sill / range
+    from engine.fit import regularised_values
+    from engine.model import Structure
+
+    axes = np.eye(3)
+    model = Model(0.0, [Structure("exponential", 1.0, (1e5, 1e5, 1e5))], axes)
+    d = np.array([2.0, 4.0, 6.0])
+    b = 3.0 / 1e5
+    assert regularised_values(model, np.array([0.0, 0.0, -1.0]), d, 2.0) == pytest.approx(b * (d - 2.0 / 3.0),
+                                                                                          rel=1e-3)
