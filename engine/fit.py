@@ -881,16 +881,8 @@ class VariogramFitter:
                     if len(data) < 20:
                         raise FitError("too few volume cells")
                     w_v = data.pairs / np.linalg.norm(data.h, axis=1)
-                    # from the fitted axes and from them turned a quarter about the major and about the minor:
-                    # a replicate may find another order of the axes, as the fit itself might have
-                    best = None
-                    for turned in swapped_axes(main.axes):
-                        candidate, wrss, _ = fit_lag_vectors(data.h, data.gamma, w_v / w_v.mean(), nugget, turned,
-                                                             n_struct, shape, start, fit_rotation=True,
-                                                             max_range=reach)
-                        if best is None or wrss < best[1]:
-                            best = (candidate, wrss)
-                    refined = best[0]
+                    refined, _, _ = fit_lag_vectors(data.h, data.gamma, w_v / w_v.mean(), nugget, main.axes, n_struct,
+                                                    shape, start, fit_rotation=True, max_range=reach)
                 principal = [_with_vectors(_from_replicate_sums(sums, f, bins.count, ex.distance, r), ex.vectors)
                              for f, ex in zip(dir_first, result.principal)]
                 # the replicate's variograms lie along the fitted axes; its model turns with its own axes
@@ -910,10 +902,9 @@ class VariogramFitter:
         out = {"replicates": o.bootstrap, "failed": failed, "resampled": unit, "groups": int(len(ids)),
                "method": f"{unit} resampled with replacement, each weighted by its draws (copies of a group do not "
                          "pair with each other); per replicate its nugget from its samples down the holes, its axes "
-                         "from a fit with rotation on its variogram volume started from the fitted axes and from them "
-                         "turned a quarter about the major and about the minor (the lowest residuals kept), its "
-                         "ranges from its directional and down-hole variograms along its own axes; what the user "
-                         "fixed stays fixed"}
+                         "from a fit with rotation on its variogram volume started from the fitted axes, its ranges "
+                         "from its directional and down-hole variograms along its own axes; what the user fixed "
+                         "stays fixed"}
         if done >= 2:
             out["axis_angle_deg"] = {n: {"median": float(np.median(v)), "p95": float(np.percentile(v, 95))}
                                      for n, v in angles.items()}
