@@ -28,6 +28,7 @@ import math
 import numpy as np
 
 from .model import Model
+from .variogram import weighted_distribution
 
 HERMITE_TERMS = 100
 LAGS_PER_AXIS = 30
@@ -38,10 +39,8 @@ def _distinct_cdf(values, weights):
     v = np.asarray(values, dtype=np.float64)
     w = np.ones(len(v)) if weights is None else np.asarray(weights, dtype=np.float64)
     ok = np.isfinite(v) & np.isfinite(w) & (w > 0)
-    v, w = v[ok], w[ok]
-    z, inverse = np.unique(v, return_inverse=True)
-    mass = np.bincount(inverse.ravel(), weights=w, minlength=len(z))
-    return z, np.cumsum(mass) / mass.sum(), mass / mass.sum()
+    z, cdf, mass, _ = weighted_distribution(v[ok], w[ok])
+    return z, cdf, mass
 
 
 def hermite_coefficients(values, weights=None, terms: int = HERMITE_TERMS) -> np.ndarray:

@@ -1112,11 +1112,7 @@ def _fit_and_check(xyz, values, hole, depth, length, args, out: Path, step, doma
 
     from .decluster import decluster
 
-    cell = getattr(args, "decluster_cell", None)
-    if cell == 0:
-        declustering = decluster(xyz, values, hole, cell_m=None, sizes_m=[])
-    else:
-        declustering = decluster(xyz, values, hole, cell_m=cell)
+    declustering = decluster(xyz, values, hole, cell_m=getattr(args, "decluster_cell", None))
     raw = values
     values = _transformed(values, args.transform, args.value, residuals=bool(detrend), weights=declustering.weights)
     options = FitOptions(**{"lag_m": args.lag, "lags": args.lags, "structures": args.structures,

@@ -142,24 +142,24 @@ def default_sizes(xyz, hole, count: int = SIZES) -> np.ndarray:
 
 def decluster(xyz, values, hole, sizes_m=None, cell_m: float | None = None,
               vertical_ratio: float = 1.0) -> Declustering:
-    """Cell declustering of ``values`` at points ``xyz`` of holes ``hole``: at ``cell_m`` when given,
-    else at the size of the scan ``sizes_m`` (default: ``default_sizes``) whose declustered mean
-    departs most from the naive mean."""
+    """Cell declustering of ``values`` at points ``xyz`` of holes ``hole``: at ``cell_m`` when given
+    (0: none, every value weighs one), else at the size of the scan ``sizes_m`` (default:
+    ``default_sizes``) whose declustered mean departs most from the naive mean."""
     xyz = np.asarray(xyz, dtype=np.float64)
     values = np.asarray(values, dtype=np.float64)
     ok = np.isfinite(values) & np.isfinite(xyz).all(axis=1)
     naive_mean, naive_var = weighted_stats(values[ok], np.ones(int(ok.sum())))
     weights = np.zeros(len(values))
+    if cell_m == 0 or (sizes_m is not None and len(sizes_m) == 0):  # no declustering: every value weighs one
+        weights[ok] = 1.0
+        return Declustering(None, weights, naive_mean, naive_var, naive_mean, naive_var,
+                            "none: every composite weighs one")
     if cell_m is not None:
         weights[ok] = cell_weights(xyz[ok], cell_m, vertical_ratio=vertical_ratio)
         mean, var = weighted_stats(values[ok], weights[ok])
         return Declustering(float(cell_m), weights, mean, var, naive_mean, naive_var, "the cell size given",
                             [float(cell_m)], [mean])
     sizes = default_sizes(xyz[ok], np.asarray(hole)[ok]) if sizes_m is None else np.asarray(sizes_m, dtype=np.float64)
-    if len(sizes) == 0:  # no declustering: every value weighs one
-        weights[ok] = 1.0
-        return Declustering(None, weights, naive_mean, naive_var, naive_mean, naive_var,
-                            "none: every composite weighs one")
     means, all_weights = [], []
     for s in sizes:
         w = cell_weights(xyz[ok], float(s), vertical_ratio=vertical_ratio)

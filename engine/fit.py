@@ -18,7 +18,7 @@ The steps, each from the pair engine in few passes:
    over mean lag distance; the down-hole lags weigh, together, as much as one principal direction)
    with sills >= 0 and ranges
    major >= semi-major >= minor, none longer than the longest lag (no pair could show it); one or
-   two structures and the shape chosen by the Bayesian information criterion.
+   two structures and the shape chosen by cross-validation over groups of holes.
 6. Uncertainty: a hole-wise bootstrap repeats steps 1, 4 and 5 with holes resampled with replacement
    (each hole weighted by the number of times it was drawn; copies of a hole do not pair with each
    other), giving intervals for each axis (degrees) and each range.
@@ -231,22 +231,25 @@ def fit_lag_vectors(h, gamma, weight, nugget, axes0, n_struct, shape, start, fit
         lo += [-0.6, -0.6, -0.6]
         hi += [0.6, 0.6, 0.6]
 
-    def values(m):
-        out = _model_values(m, h)
-        if along is not None:
-            rows, direction, length = along
-            out[rows] = regularised_values(m, direction, _row_lengths(h[rows]), length)
-        return out
-
     def residual(p):
         m = _unpack(p, n_struct, shape, axes0, nugget, fit_rotation, scale)
-        return sw * (values(m) - gamma)
+        return sw * (_fitted_values(m, h, along) - gamma)
 
     result = least_squares(residual, np.array(x0), bounds=(np.array(lo), np.array(hi)), x_scale="jac",
                            max_nfev=100 * len(x0), xtol=tolerance, ftol=tolerance, gtol=tolerance)
     model = _unpack(result.x, n_struct, shape, axes0, nugget, fit_rotation, scale)
-    r = values(model) - gamma
+    r = _fitted_values(model, h, along) - gamma
     return model, float(np.sum(weight * r * r)), r
+
+
+def _fitted_values(model, h, along=None) -> np.ndarray:
+    """The model at the rows of lag vectors ``h`` (_model_values), ``along``'s down-hole rows
+    regularised over the composites (regularised_values)."""
+    out = _model_values(model, h)
+    if along is not None:
+        rows, direction, length = along
+        out[rows] = regularised_values(model, direction, _row_lengths(h[rows]), length)
+    return out
 
 
 def _row_lengths(h) -> np.ndarray:
@@ -375,8 +378,7 @@ def _downhole_data(downhole: Experimental, directions, min_pairs, total_weight, 
     if cone:
         h = d[:, None, None] * directions[None, :, :]
     else:
-        mean = directions.mean(axis=0)
-        h = d[:, None] * (mean / max(np.linalg.norm(mean), 1e-12))[None, :]
+        h = d[:, None] * _mean_direction(directions)[None, :]
     w = downhole.pairs[ok] / d
     w = w * (total_weight / w.sum()) if w.sum() > 0 else w
     return h, downhole.gamma[ok], w
@@ -418,18 +420,20 @@ def _along(which, directions, support_m):
     rows = np.flatnonzero(np.asarray(which) == 3)
     if not support_m or len(rows) == 0 or directions is None:
         return None
+    return rows, _mean_direction(directions), float(support_m)
+
+
+def _mean_direction(directions) -> np.ndarray:
+    """The unit mean of the holes' directions (K, 3)."""
     mean = np.asarray(directions, dtype=np.float64).mean(axis=0)
-    return rows, mean / max(np.linalg.norm(mean), 1e-12), float(support_m)
+    return mean / max(np.linalg.norm(mean), 1e-12)
 
 
 def cressie_score(model: Model, h, gamma, pairs, along=None) -> float:
     """Sum of N (gamma - model)^2 / model^2 over rows, over the sum of N: the weighted criterion of
     Cressie ("Fitting variogram models by weighted least squares", Math. Geology 17(5), 1985), the
     model compared with each row over its cone (and, for ``along``'s rows, regularised)."""
-    fitted = _model_values(model, h)
-    if along is not None:
-        rows, direction, length = along
-        fitted[rows] = regularised_values(model, direction, _row_lengths(h[rows]), length)
+    fitted = _fitted_values(model, h, along)
     floor = 1e-3 * max(float(np.mean(np.abs(gamma))), np.finfo(np.float64).tiny)
     ok = np.isfinite(gamma) & (pairs > 0)
     return float(np.sum(pairs[ok] * ((gamma[ok] - fitted[ok]) / np.maximum(fitted[ok], floor)) ** 2)
@@ -770,8 +774,6 @@ class VariogramFitter:
         acc = self._principal_pass(xyz, values, hole, depth, index, axes, bins, None, self._volume_grid(reach),
                                    downhole_bins)
         self.volume_ = self.principal_ = acc
-        frame, _ = hole_frame(xyz, hole)
-        self.frame_volume_ = (frame, bins.lag_m, float(downhole_bins.lag_m), reach)
         principal = self._with_pair_directions(xyz, index, axes, bins, directional_experimentals(acc))
         downhole = downhole_experimental(acc)
         return self._finish(xyz, values, hole, depth, index, axes, principal, downhole, variance, bins, downhole_bins,
@@ -805,9 +807,9 @@ class VariogramFitter:
         first = best[0]
         # the volume in the frame of the holes: cells one composite long along them, one lag across
         frame, _ = hole_frame(xyz, hole)
-        data = FrameVolume(xyz, hole, depth, frame, bins.lag_m, float(downhole_bins.lag_m), reach,
-                           o.threads).data(values).supported(o.min_pairs)
-        self.frame_volume_ = (frame, bins.lag_m, float(downhole_bins.lag_m), reach)
+        self.frame_volume_ = FrameVolume(xyz, hole, depth, frame, bins.lag_m, float(downhole_bins.lag_m), reach,
+                                         o.threads)  # kept for the bootstrap's replicates
+        data = self.frame_volume_.data(values).supported(o.min_pairs)
         axes = axes0
         if len(data) >= 20:
             hv, gv = data.h, data.gamma
@@ -855,9 +857,8 @@ class VariogramFitter:
         width = bins.count + 1
         dir_first = [plan.layout[k.L_DIR_SLOT] + a * width for a in range(3)]
         dh_first = plan.layout[k.L_DH_SLOT]
-        frame, across, along, _ = self.frame_volume_
-        fv = FrameVolume(xyz, hole, depth, frame, across, along, reach, o.threads) if o.axes is None else None
-        n_fv, s_fv = fv.replicates(values, weights, group=code) if o.axes is None else (None, None)
+        fv = self.frame_volume_ if o.axes is None else None  # the refinement's volume (no rotation when fixed)
+        n_fv, s_fv = fv.replicates(values, weights, group=code) if fv is not None else (None, None)
         shape = main.structures[0].shape
         n_struct = len(main.structures)
         start = [(s.sill, *s.ranges_m) for s in main.structures]

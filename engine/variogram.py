@@ -236,19 +236,18 @@ def normal_scores(values, weights=None) -> np.ndarray:
     if weights is None:
         out[finite] = ndtri((_average_ranks(values[finite]) - 0.5) / n)
         return out
-    v = values[finite]
-    w = np.asarray(weights, dtype=np.float64)[finite]
-    order = np.argsort(v, kind="stable")
-    sv, sw = v[order], w[order]
-    new = np.r_[True, sv[1:] != sv[:-1]]
-    group = np.cumsum(new) - 1
-    tie_weight = np.bincount(group, weights=sw)
-    below = np.r_[0.0, np.cumsum(tie_weight)[:-1]]
-    p = (below + 0.5 * tie_weight) / tie_weight.sum()
-    scores = np.empty(len(v))
-    scores[order] = ndtri(p[group])
-    out[finite] = scores
+    _, cdf, mass, inverse = weighted_distribution(values[finite], np.asarray(weights, dtype=np.float64)[finite])
+    out[finite] = ndtri((cdf - 0.5 * mass)[inverse])
     return out
+
+
+def weighted_distribution(values, weights):
+    """The distinct values in increasing order, the cumulative probability at each and each one's
+    probability (its weight, ties summed, over the total), and each value's place among them."""
+    z, inverse = np.unique(np.asarray(values, dtype=np.float64), return_inverse=True)
+    mass = np.bincount(inverse.ravel(), weights=np.asarray(weights, dtype=np.float64), minlength=len(z))
+    mass = mass / mass.sum()
+    return z, np.cumsum(mass), mass, inverse.ravel()
 
 
 def _average_ranks(values: np.ndarray) -> np.ndarray:
